@@ -1,0 +1,3 @@
+from holotype.cli import main
+
+main()

@@ -1,0 +1,67 @@
+"""Every file holotype writes goes through here: a reader sees the old file or the new one, never half."""
+
+from __future__ import annotations
+
+import os
+import tempfile
+from pathlib import Path
+
+TEMP_PREFIX = ".holotype-tmp-"
+
+
+def _fsync_folder(folder: Path) -> None:
+    try:
+        fd = os.open(folder, os.O_RDONLY)
+    except OSError:  # some platforms cannot open folders; the rename is still atomic
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)
+
+
+def write_atomic(path: Path, data: bytes | str, *, mode: int | None = None) -> None:
+    """Write `data` to `path` by temp file in the same folder, flush, fsync, rename, fsync folder."""
+    path = Path(path)
+    path.parent.mkdir(parents=True, exist_ok=True)
+    payload = data.encode("utf-8") if isinstance(data, str) else data
+    fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(payload)
+            fh.flush()
+            os.fsync(fh.fileno())
+        if mode is not None:
+            os.chmod(tmp_name, mode)
+        elif path.exists():
+            os.chmod(tmp_name, path.stat().st_mode & 0o7777)
+        else:
+            umask = os.umask(0)
+            os.umask(umask)
+            os.chmod(tmp_name, 0o666 & ~umask)
+        os.replace(tmp_name, path)
+    except BaseException:
+        try:
+            os.unlink(tmp_name)
+        except OSError:
+            pass
+        raise
+    _fsync_folder(path.parent)
+
+
+def remove_stale_temps(folder: Path) -> int:
+    """Delete temp files a killed run left behind in `folder`; return how many."""
+    removed = 0
+    try:
+        entries = list(Path(folder).glob(TEMP_PREFIX + "*"))
+    except OSError:
+        return 0
+    for entry in entries:
+        try:
+            entry.unlink()
+            removed += 1
+        except OSError:
+            pass
+    return removed

@@ -1,0 +1,1 @@
+"""Capture: read the world (interpreter, packages, files, outputs) and return plain data."""

@@ -1,0 +1,117 @@
+"""Digests remembered by file identity (device, inode, size, mtime_ns, ctime_ns) in the user's cache dir.
+
+An optimisation only: a missing or corrupt cache is rebuilt silently, and entries are never
+trusted for files changed in the last moments (their timestamps could still be shared with a
+later write in the same clock tick).
+"""
+
+from __future__ import annotations
+
+import os
+import sqlite3
+import time
+from pathlib import Path
+
+RACY_SECONDS = 2.0
+_SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
+    dev INTEGER NOT NULL, ino INTEGER NOT NULL, size INTEGER NOT NULL,
+    mtime_ns INTEGER NOT NULL, ctime_ns INTEGER NOT NULL, sha256 TEXT NOT NULL,
+    PRIMARY KEY (dev, ino))"""
+
+Identity = tuple[int, int, int, int, int]
+
+
+def identity_of(st: os.stat_result) -> Identity:
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+def default_cache_path() -> Path:
+    """$HOLOTYPE_CACHE_DIR, else the platform's user cache folder."""
+    override = os.environ.get("HOLOTYPE_CACHE_DIR")
+    if override:
+        return Path(override) / "digests.sqlite3"
+    from platformdirs import user_cache_dir
+
+    return Path(user_cache_dir("holotype", appauthor=False)) / "digests.sqlite3"
+
+
+class DigestCache:
+    """SQLite-backed; safe for concurrent holotype runs (WAL, busy timeout, short transactions)."""
+
+    def __init__(self, path: Path | None = None) -> None:
+        self.path = path or default_cache_path()
+        self.conn: sqlite3.Connection | None = None
+        self._open()
+
+    def _connect(self) -> sqlite3.Connection:
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        conn = sqlite3.connect(self.path, timeout=30, isolation_level=None, check_same_thread=False)
+        conn.execute("PRAGMA journal_mode=WAL")
+        conn.execute(_SCHEMA)
+        conn.execute("SELECT count(*) FROM digests WHERE dev = -1").fetchone()
+        return conn
+
+    def _open(self) -> None:
+        try:
+            self.conn = self._connect()
+            return
+        except (sqlite3.DatabaseError, OSError):
+            pass
+        for suffix in ("", "-wal", "-shm"):  # corrupt: start again
+            try:
+                Path(str(self.path) + suffix).unlink()
+            except OSError:
+                pass
+        try:
+            self.conn = self._connect()
+        except (sqlite3.DatabaseError, OSError):
+            self.conn = None  # no cache this time; hashing still works
+
+    def lookup(self, identities: list[Identity]) -> dict[Identity, str]:
+        """Known digests for these file identities."""
+        if self.conn is None or not identities:
+            return {}
+        wanted = set(identities)
+        found: dict[Identity, str] = {}
+        try:
+            by_dev: dict[int, list[int]] = {}
+            for ident in identities:
+                by_dev.setdefault(ident[0], []).append(ident[1])
+            for dev, inodes in by_dev.items():
+                for start in range(0, len(inodes), 900):
+                    chunk = inodes[start:start + 900]
+                    marks = ",".join("?" * len(chunk))
+                    rows = self.conn.execute(
+                        f"SELECT dev, ino, size, mtime_ns, ctime_ns, sha256 FROM digests "
+                        f"WHERE dev = ? AND ino IN ({marks})", (dev, *chunk)).fetchall()
+                    for row in rows:
+                        key = (row[0], row[1], row[2], row[3], row[4])
+                        if key in wanted:
+                            found[key] = row[5]
+        except sqlite3.DatabaseError:
+            return {}
+        return found
+
+    def store(self, entries: list[tuple[Identity, str]]) -> None:
+        """Remember digests, skipping files touched too recently to be trusted later."""
+        if self.conn is None or not entries:
+            return
+        now_ns = time.time_ns()
+        safe = [(*ident, digest) for ident, digest in entries
+                if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]
+        if not safe:
+            return
+        try:
+            self.conn.execute("BEGIN IMMEDIATE")
+            self.conn.executemany("INSERT OR REPLACE INTO digests VALUES (?, ?, ?, ?, ?, ?)", safe)
+            self.conn.execute("COMMIT")
+        except sqlite3.DatabaseError:
+            try:
+                self.conn.execute("ROLLBACK")
+            except sqlite3.DatabaseError:
+                pass
+
+    def close(self) -> None:
+        if self.conn is not None:
+            self.conn.close()
+            self.conn = None

@@ -1,0 +1,71 @@
+"""Where a package came from, per PEP 610 direct_url.json, with every credential stripped."""
+
+from __future__ import annotations
+
+import re
+import urllib.parse
+from typing import Any
+
+from holotype.records import Origin
+
+# Query parameters that carry secrets in signed or tokenised download URLs.
+_SECRET_QUERY = re.compile(r"(token|secret|password|passwd|pwd|key|sig|signature|auth|credential|session)",
+                           re.IGNORECASE)
+# PEP 610: "${USER}:${PASS}" style environment-variable references are kept; they hold no secret.
+_ENV_REFERENCE = re.compile(r"^\$\{[A-Za-z0-9-_]+\}(:\$\{[A-Za-z0-9-_]+\})?$")
+_SAFE_USERS = ("git",)
+
+
+def strip_credentials(url: str) -> str:
+    """`url` without user:password (PEP 610's rule) and without secret-looking query values."""
+    try:
+        parts = urllib.parse.urlsplit(url)
+    except ValueError:
+        return "<unparseable url>"
+    netloc = parts.netloc
+    if "@" in netloc:
+        userinfo, host = netloc.rsplit("@", 1)
+        if userinfo not in _SAFE_USERS and not _ENV_REFERENCE.match(userinfo):
+            netloc = host
+    query = parts.query
+    if query:
+        pairs = urllib.parse.parse_qsl(query, keep_blank_values=True)
+        kept = [(k, "REDACTED" if _SECRET_QUERY.search(k) else v) for k, v in pairs]
+        query = urllib.parse.urlencode(kept, safe="${}")
+    return urllib.parse.urlunsplit((parts.scheme, netloc, parts.path, query, parts.fragment))
+
+
+def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
+    """Build an Origin from a parsed direct_url.json; `None` means installed from an index."""
+    if doc is None:
+        return Origin("index")
+    if not isinstance(doc, dict) or not isinstance(doc.get("url"), str):
+        return Origin("unknown")
+    from packaging.direct_url import DirectUrl, DirectUrlValidationError
+
+    try:
+        parsed = DirectUrl.from_dict(doc)
+    except (DirectUrlValidationError, TypeError, ValueError):
+        return Origin("unknown", url=strip_credentials(doc["url"]))
+    url = strip_credentials(parsed.url)
+    if parsed.vcs_info is not None:
+        return Origin(
+            "vcs",
+            url=url,
+            vcs=parsed.vcs_info.vcs,
+            commit=parsed.vcs_info.commit_id,
+            requested_revision=parsed.vcs_info.requested_revision,
+            subdirectory=parsed.subdirectory,
+        )
+    if parsed.dir_info is not None:
+        kind = "editable" if parsed.dir_info.editable else "directory"
+        return Origin(kind, url=url, subdirectory=parsed.subdirectory)
+    info = parsed.archive_info
+    digest = None
+    if info is not None:
+        if info.hashes:
+            algo = "sha256" if "sha256" in info.hashes else sorted(info.hashes)[0]
+            digest = f"{algo}={info.hashes[algo]}"
+        elif info.hash:
+            digest = info.hash
+    return Origin("archive", url=url, archive_hash=digest, subdirectory=parsed.subdirectory)

@@ -1,0 +1,163 @@
+"""Runs INSIDE the target interpreter and prints one JSON document describing it.
+
+Standard library only, and valid on Python 3.8 and newer: analysis environments lag
+behind the interpreter holotype itself runs on. Do not import holotype from here.
+"""
+
+import json
+import os
+import platform
+import sys
+import sysconfig
+
+PROBE_FORMAT = 1
+
+
+def _stdlib_names():
+    names = getattr(sys, "stdlib_module_names", None)
+    if names is not None:
+        return sorted(names)
+    # Python < 3.10: list what lives in the standard library folder, plus built-ins.
+    import pkgutil
+
+    found = set(sys.builtin_module_names)
+    stdlib = sysconfig.get_paths().get("stdlib")
+    folders = [p for p in (stdlib, os.path.join(stdlib or "", "lib-dynload")) if p and os.path.isdir(p)]
+    for info in pkgutil.iter_modules(folders):
+        if info.name != "site-packages":
+            found.add(info.name)
+    return sorted(found)
+
+
+def _top_level_names(dist):
+    text = None
+    try:
+        text = dist.read_text("top_level.txt")
+    except Exception:
+        text = None
+    names = set()
+    if text:
+        for line in text.splitlines():
+            line = line.strip().replace("/", ".")
+            if line:
+                names.add(line.split(".")[0])
+        return sorted(names)
+    try:
+        files = dist.files or []
+    except Exception:
+        files = []
+    for entry in files:
+        parts = str(entry).replace("\\", "/").split("/")
+        first = parts[0]
+        if first.endswith((".dist-info", ".egg-info", ".data")) or first in ("..", "__pycache__", ""):
+            continue
+        if len(parts) == 1:
+            if first.endswith(".py"):
+                names.add(first[:-3])
+            elif first.endswith((".so", ".pyd")):
+                names.add(first.split(".")[0])
+        elif first.isidentifier():
+            names.add(first)
+    return sorted(names)
+
+
+def _distributions():
+    from importlib import metadata
+
+    seen = set()
+    result = []
+    for dist in metadata.distributions():
+        try:
+            name = dist.metadata["Name"]
+        except Exception:
+            name = None
+        if not name:
+            continue
+        key = name.lower()
+        if key in seen:  # the first one on sys.path is the one imports see
+            continue
+        seen.add(key)
+        installer = dist.read_text("INSTALLER")
+        direct_url = dist.read_text("direct_url.json")
+        try:
+            requested = dist.read_text("REQUESTED") is not None
+        except Exception:
+            requested = False
+        try:
+            origin = json.loads(direct_url) if direct_url else None
+        except ValueError:
+            origin = {"invalid": direct_url[:200]}
+        result.append(
+            {
+                "name": name,
+                "version": dist.version,
+                "installer": (installer or "").strip() or None,
+                "requested": requested,
+                "requires": list(dist.requires or []),
+                "top_level": _top_level_names(dist),
+                "direct_url": origin,
+            }
+        )
+    return result
+
+
+def _libc():
+    try:
+        name, version = platform.libc_ver()
+    except Exception:
+        name, version = "", ""
+    return name or None, version or None
+
+
+def _marker_environment():
+    # The PEP 508 marker variables, computed as packaging computes them.
+    info = sys.implementation
+    version = "{0.major}.{0.minor}.{0.micro}".format(info.version)
+    if info.version.releaselevel != "final":
+        version += info.version.releaselevel[0] + str(info.version.serial)
+    return {
+        "implementation_name": info.name,
+        "implementation_version": version,
+        "os_name": os.name,
+        "platform_machine": platform.machine(),
+        "platform_release": platform.release(),
+        "platform_system": platform.system(),
+        "platform_version": platform.version(),
+        "python_full_version": platform.python_version(),
+        "platform_python_implementation": platform.python_implementation(),
+        "python_version": ".".join(platform.python_version_tuple()[:2]),
+        "sys_platform": sys.platform,
+    }
+
+
+def describe():
+    libc_name, libc_version = _libc()
+    info = sys.implementation
+    return {
+        "probe_format": PROBE_FORMAT,
+        "interpreter": {
+            "implementation": info.name,
+            "version": platform.python_version(),
+            "version_info": list(sys.version_info[:3]),
+            "compiler": platform.python_compiler(),
+            "abi": sysconfig.get_config_var("SOABI"),
+            "cache_tag": info.cache_tag,
+            "executable": sys.executable,
+            "prefix": sys.prefix,
+            "base_prefix": getattr(sys, "base_prefix", sys.prefix),
+        },
+        "platform": {
+            "system": platform.system(),
+            "release": platform.release(),
+            "machine": platform.machine(),
+            "libc": libc_name,
+            "libc_version": libc_version,
+        },
+        "markers": _marker_environment(),
+        "stdlib": _stdlib_names(),
+        "distributions": _distributions(),
+    }
+
+
+if __name__ == "__main__":
+    sys.stdout.write(json.dumps(describe()))

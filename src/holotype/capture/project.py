@@ -1,0 +1,54 @@
+"""Capture a whole project at once: target environment, which packages it uses, data and code digests."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from holotype.capture.digest_cache import DigestCache
+from holotype.capture.environment import capture_environment, resolve_python
+from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
+from holotype.capture.imports import scan_imports
+from holotype.capture.usage import declared_requirements, mark_used, used_closure
+from holotype.capture.walk import ProjectFile, ProjectWalker
+from holotype.config import Config
+from holotype.records import Environment
+
+
+@dataclass
+class ProjectCapture:
+    environment: Environment
+    python: str
+    data: FingerprintResult
+    code: FingerprintResult
+    code_problems: list[tuple[str, str]] = field(default_factory=list)
+    unmatched_data: list[str] = field(default_factory=list)
+
+
+def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
+    """Data files, code files, and data patterns that matched nothing."""
+    walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source)
+    data, unmatched = walker.collect(config.data)
+    if config.code is not None:
+        code, _ = walker.collect(config.code)
+    else:
+        code = walker.code_files(data)
+    return data, code, unmatched
+
+
+def capture_project(config: Config, *, python_override: str | None = None, full: bool = False,
+                    progress: HashProgress | None = None) -> ProjectCapture:
+    """Everything `record` writes and `check` compares, except analysis outputs."""
+    python, how = resolve_python(config.python, config.root, python_override)
+    env = capture_environment(python, config.root, how)
+    data_files, code_files, unmatched = tracked_files(config)
+    scan = scan_imports([(rel, f.path) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
+    env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
+    cache = None if full else DigestCache()
+    try:
+        data = fingerprint_files(data_files, cache=cache, progress=progress)
+        code = fingerprint_files(code_files, cache=cache)
+    finally:
+        if cache is not None:
+            cache.close()
+    return ProjectCapture(env, python, data, code, scan.problems, unmatched)

@@ -1,0 +1,79 @@
+"""Which installed packages the analysis uses: imported or declared, closed over their requirements."""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import replace
+from pathlib import Path
+
+from holotype.records import Environment, PackageRecord
+
+
+def declared_requirements(root: Path) -> list[str]:
+    """`[project] dependencies` from the project's pyproject.toml, if any."""
+    path = root / "pyproject.toml"
+    if not path.is_file():
+        return []
+    try:
+        doc = tomllib.loads(path.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        return []  # the config loader reports a broken pyproject.toml where it matters
+    deps = doc.get("project", {}).get("dependencies", []) if isinstance(doc.get("project"), dict) else []
+    return [d for d in deps if isinstance(d, str)]
+
+
+def module_owners(env: Environment) -> dict[str, list[str]]:
+    """Top-level import name -> distributions providing it."""
+    owners: dict[str, list[str]] = {}
+    for pkg in env.packages.values():
+        for mod in pkg.top_level:
+            owners.setdefault(mod, []).append(pkg.name)
+    return owners
+
+
+def used_closure(env: Environment, imported: set[str], declared: list[str]) -> set[str]:
+    """Canonical names of the packages the code needs, following Requires-Dist with the target's markers."""
+    from packaging.requirements import InvalidRequirement, Requirement
+    from packaging.utils import canonicalize_name
+
+    owners = module_owners(env)
+    queue: list[tuple[str, frozenset[str]]] = []
+    for mod in imported:
+        if mod in env.stdlib and mod not in owners:
+            continue
+        queue.extend((name, frozenset()) for name in owners.get(mod, []))
+    for text in declared:
+        try:
+            req = Requirement(text)
+        except InvalidRequirement:
+            continue
+        if req.marker is None or req.marker.evaluate(dict(env.markers) or None):  # type: ignore[arg-type]
+            queue.append((canonicalize_name(req.name), frozenset(req.extras)))
+    seen: set[tuple[str, frozenset[str]]] = set()
+    used: set[str] = set()
+    while queue:
+        name, extras = queue.pop()
+        if (name, extras) in seen or name not in env.packages:
+            continue
+        seen.add((name, extras))
+        used.add(name)
+        for text in env.packages[name].requires:
+            try:
+                req = Requirement(text)
+            except InvalidRequirement:
+                continue
+            if req.marker is not None:
+                marker_env = dict(env.markers)
+                wanted = extras or frozenset({""})
+                if not any(req.marker.evaluate({**marker_env, "extra": e}) for e in wanted):  # type: ignore[arg-type]
+                    continue
+            queue.append((canonicalize_name(req.name), frozenset(req.extras)))
+    return used
+
+
+def mark_used(env: Environment, used: set[str]) -> Environment:
+    """The same environment with each package's `used` flag set."""
+    packages: dict[str, PackageRecord] = {
+        name: replace(pkg, used=name in used) for name, pkg in env.packages.items()
+    }
+    return replace(env, packages=packages)

@@ -1,0 +1,187 @@
+"""Turn the config's data/code/exclude patterns into a sorted list of project files, without following links."""
+
+from __future__ import annotations
+
+import os
+import re
+import stat
+from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path, PurePosixPath
+
+from holotype.errors import ConfigError
+
+# Never fingerprinted: version control, virtual environments, caches, holotype's own store.
+SKIP_FOLDERS = frozenset({
+    ".git", ".hg", ".svn", ".venv", "venv", "__pycache__", ".mypy_cache", ".pytest_cache",
+    ".ruff_cache", ".ipynb_checkpoints", "node_modules", ".tox", ".nox", ".holotype", ".hypothesis",
+})
+GLOB_CHARS = frozenset("*?[")
+
+
+@dataclass(frozen=True)
+class ProjectFile:
+    rel: str  # project-relative POSIX path
+    path: Path
+    is_link: bool
+    size: int
+
+
+@lru_cache(maxsize=512)
+def glob_regex(pattern: str) -> re.Pattern[str]:
+    """A regex for a path glob: '*' and '?' stay inside one folder, '**/' spans any number of them."""
+    out = []
+    i = 0
+    while i < len(pattern):
+        c = pattern[i]
+        if pattern.startswith("**/", i):
+            out.append("(?:.*/)?")
+            i += 3
+            continue
+        if pattern.startswith("**", i):
+            out.append(".*")
+            i += 2
+            continue
+        if c == "*":
+            out.append("[^/]*")
+        elif c == "?":
+            out.append("[^/]")
+        elif c == "[":
+            end = pattern.find("]", i + 1)
+            if end == -1:
+                out.append(re.escape(c))
+            else:
+                body = pattern[i + 1:end].replace("\\", "\\\\")
+                if body.startswith("!"):
+                    body = "^" + body[1:]
+                out.append(f"[{body}]")
+                i = end
+        else:
+            out.append(re.escape(c))
+        i += 1
+    return re.compile("".join(out) + r"\Z")
+
+
+def matches(rel: str, pattern: str) -> bool:
+    """Whether project-relative `rel` matches `pattern`; a pattern without '/' matches the name at any depth."""
+    if "/" not in pattern.rstrip("/"):
+        return bool(glob_regex(pattern.rstrip("/")).match(rel.rsplit("/", 1)[-1]))
+    return bool(glob_regex(pattern.rstrip("/")).match(rel))
+
+
+def is_excluded(rel: str, excludes: tuple[str, ...]) -> bool:
+    if not excludes:
+        return False
+    parts = rel.split("/")
+    for pattern in excludes:
+        if matches(rel, pattern):
+            return True
+        # excluding a folder excludes everything below it
+        for depth in range(1, len(parts)):
+            if matches("/".join(parts[:depth]), pattern):
+                return True
+    return False
+
+
+class ProjectWalker:
+    """Walks the project tree with os.scandir; one pass, no per-file subprocess, links not followed."""
+
+    def __init__(self, root: Path, excludes: tuple[str, ...] = (), allow_outside: bool = False,
+                 config_path: Path | None = None) -> None:
+        self.root = Path(root)
+        self.root_real = os.path.realpath(self.root)
+        self.excludes = excludes
+        self.allow_outside = allow_outside
+        self.config_path = config_path
+
+    def _rel(self, path: str) -> str:
+        return PurePosixPath(Path(os.path.relpath(path, self.root)).as_posix()).as_posix()
+
+    def _check_link(self, full: str, rel: str) -> None:
+        if self.allow_outside:
+            return
+        target = os.path.realpath(full)
+        if target != self.root_real and not target.startswith(self.root_real + os.sep):
+            raise ConfigError(f"'{rel}' is a symbolic link leading outside the project (to {os.readlink(full)}); "
+                              "set allow_outside = true to permit it", self.config_path)
+
+    def _walk_folder(self, folder: str, out: dict[str, ProjectFile]) -> None:
+        stack = [folder]
+        while stack:
+            current = stack.pop()
+            try:
+                with os.scandir(current) as it:
+                    entries = list(it)
+            except OSError:
+                continue  # unreadable folder: nothing inside it can be listed; the folder is reported by caller
+            for entry in entries:
+                full = entry.path
+                rel = self._rel(full)
+                if is_excluded(rel, self.excludes):
+                    continue
+                try:
+                    if entry.is_symlink():
+                        self._check_link(full, rel)
+                        out[rel] = ProjectFile(rel, Path(full), True, 0)
+                    elif entry.is_dir(follow_symlinks=False):
+                        if entry.name in SKIP_FOLDERS or os.path.exists(os.path.join(full, "pyvenv.cfg")):
+                            continue
+                        stack.append(full)
+                    elif entry.is_file(follow_symlinks=False):
+                        out[rel] = ProjectFile(rel, Path(full), False, entry.stat(follow_symlinks=False).st_size)
+                except OSError:
+                    out[rel] = ProjectFile(rel, Path(full), False, 0)
+
+    def _add_path(self, full: str, rel: str, out: dict[str, ProjectFile]) -> None:
+        try:
+            st = os.lstat(full)
+        except OSError:
+            return
+        if stat.S_ISLNK(st.st_mode):
+            self._check_link(full, rel)
+            out[rel] = ProjectFile(rel, Path(full), True, 0)
+        elif stat.S_ISDIR(st.st_mode):
+            self._walk_folder(full, out)
+        elif stat.S_ISREG(st.st_mode):
+            out[rel] = ProjectFile(rel, Path(full), False, st.st_size)
+
+    def collect(self, patterns: tuple[str, ...]) -> tuple[dict[str, ProjectFile], list[str]]:
+        """Files matched by `patterns` (files, folders or globs), and the patterns that matched nothing."""
+        out: dict[str, ProjectFile] = {}
+        unmatched: list[str] = []
+        for pattern in patterns:
+            before = len(out)
+            pattern = pattern.rstrip("/") or "."
+            if not GLOB_CHARS.intersection(pattern):
+                full = os.path.normpath(os.path.join(self.root, pattern))
+                if not os.path.lexists(full):
+                    unmatched.append(pattern)
+                    continue
+                self._add_path(full, self._rel(full), out)
+            else:
+                parts = pattern.split("/")
+                fixed = []
+                for part in parts:
+                    if GLOB_CHARS.intersection(part):
+                        break
+                    fixed.append(part)
+                base = os.path.join(self.root, *fixed) if fixed else str(self.root)
+                found: dict[str, ProjectFile] = {}
+                if os.path.isdir(base) and not os.path.islink(base):
+                    self._walk_folder(base, found)
+                regex = glob_regex(pattern)
+                for rel, item in found.items():
+                    parts_rel = rel.split("/")
+                    # a glob naming a folder takes everything below that folder
+                    if regex.match(rel) or any(regex.match("/".join(parts_rel[:d])) for d in range(1, len(parts_rel))):
+                        out[rel] = item
+            if len(out) == before and pattern not in unmatched:
+                unmatched.append(pattern)
+        return dict(sorted(out.items())), unmatched
+
+    def code_files(self, data: dict[str, ProjectFile]) -> dict[str, ProjectFile]:
+        """Default code set: every .py and .ipynb in the project outside data, skipped folders and excludes."""
+        everything: dict[str, ProjectFile] = {}
+        self._walk_folder(str(self.root), everything)
+        return {rel: f for rel, f in sorted(everything.items())
+                if rel.endswith((".py", ".ipynb")) and rel not in data and not f.is_link}

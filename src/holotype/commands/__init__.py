@@ -1,0 +1,1 @@
+"""What each command does, callable from Python: build findings, never print or exit."""

@@ -1,0 +1,146 @@
+"""`holotype record`: capture everything, run the analyses, store baselines, write holotype.lock."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import secrets
+from dataclasses import dataclass
+from datetime import datetime, timezone
+from pathlib import Path
+
+from holotype import __version__
+from holotype.atomic import remove_stale_temps, write_atomic
+from holotype.baselines import STORE_FOLDER, BaselineStore
+from holotype.capture.fingerprints import HashProgress
+from holotype.capture.project import capture_project
+from holotype.capture.runs import RunProgress, run_analysis, run_order
+from holotype.config import Config, load_config
+from holotype.config_edit import add_seed
+from holotype.errors import HolotypeError, LockfileError
+from holotype.findings import Finding, Report
+from holotype.findings.policy import apply_policy
+from holotype.lockfile import LOCK_NAME, read_lock, write_lock
+from holotype.project_lock import project_lock
+from holotype.records import AnalysisRecord, Lock, OutputRecord
+from holotype.seeds import derive_seed
+
+STORE_GITIGNORE = "# holotype: the baselines are committed; logs and the busy marker are not\nbusy\nlogs/\n"
+
+
+def timestamp() -> str:
+    """UTC time of the record (SOURCE_DATE_EPOCH wins, for byte-reproducible locks)."""
+    epoch = os.environ.get("SOURCE_DATE_EPOCH")
+    moment = datetime.fromtimestamp(int(epoch), timezone.utc) if epoch and epoch.isdigit() \
+        else datetime.now(timezone.utc)
+    return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def ensure_store(root: Path) -> None:
+    """Create .holotype/ with its .gitignore and clear temp files a killed run left behind."""
+    folder = Path(root) / STORE_FOLDER
+    folder.mkdir(exist_ok=True)
+    ignore = folder / ".gitignore"
+    if not ignore.exists():
+        write_atomic(ignore, STORE_GITIGNORE)
+    remove_stale_temps(Path(root))
+    BaselineStore(root).clean_temps()
+
+
+def ensure_seed(config: Config) -> tuple[Config, str | None]:
+    """The config with a project seed, drawing one and writing it back if absent."""
+    if config.seed is not None:
+        return config, None
+    if config.source is None:
+        raise HolotypeError("no holotype.toml here; run 'holotype start' first", config.root)
+    seed = 1 + secrets.randbelow(2**31 - 1)
+    add_seed(config.source, seed)
+    return load_config(config.root), f"drew project seed {seed} and wrote it to {config.source.name}"
+
+
+@dataclass
+class RecordOutcome:
+    report: Report
+    written: bool
+
+
+def previous_lock(root: Path) -> Lock | None:
+    try:
+        return read_lock(Path(root) / LOCK_NAME)
+    except LockfileError:
+        return None
+
+
+def record_project(root: Path, *, run: bool = True, python: str | None = None,
+                   hash_progress: HashProgress | None = None, run_progress: RunProgress | None = None) -> RecordOutcome:
+    """Record the project; on any failure nothing new is written and the report says why."""
+    root = Path(root)
+    config = load_config(root)
+    with project_lock(root):
+        ensure_store(root)
+        config, seed_note = ensure_seed(config)
+        assert config.seed is not None
+        capture = capture_project(config, python_override=python, progress=hash_progress)
+        findings: list[Finding] = []
+        for rel, (kind, message) in capture.data.problems.items():
+            findings.append(Finding("data", rel, f"data.{kind}", message))
+        for pattern in capture.unmatched_data:
+            findings.append(Finding("data", pattern, "data.missing", "matches no file"))
+        old = previous_lock(root)
+        analyses: dict[str, AnalysisRecord] = {}
+        store = BaselineStore(root)
+        if run:
+            pending: list[tuple[str, bytes]] = []
+            for index, analysis in enumerate(run_order(config.analyses, config.source)):
+                if run_progress is not None:
+                    run_progress.started(analysis.name, index, len(config.analyses))
+                result = run_analysis(config, capture.python, analysis, config.seed, progress=run_progress)
+                if run_progress is not None:
+                    run_progress.finished(analysis.name, result.ok, result.seconds)
+                if not result.ok:
+                    findings.append(Finding("analysis", analysis.name, "analysis.failed",
+                                            f"{result.failure_text()} (log: {result.log.relative_to(root)})"))
+                    continue
+                outputs = {}
+                for out, data in result.outputs.items():
+                    digest = hashlib.sha256(data).hexdigest()
+                    pending.append((out, data))
+                    outputs[out] = OutputRecord(out, digest, len(data),
+                                                config.rulebook.for_output(out).summary())
+                analyses[analysis.name] = AnalysisRecord(analysis.name, analysis.run, result.seed, outputs,
+                                                         analysis.inputs)
+                findings.append(Finding("analysis", analysis.name, "lockfile.note",
+                                        f"ran in {result.seconds:.1f}s with seed {result.seed}; "
+                                        f"{len(outputs)} output(s) stored"))
+        elif old is not None:
+            analyses = {name: rec for name, rec in old.analyses.items()
+                        if any(a.name == name for a in config.analyses)}
+            for name, rec in analyses.items():
+                analyses[name] = AnalysisRecord(name, config.analysis(name).run, derive_seed(config.seed, name),
+                                                rec.outputs, config.analysis(name).inputs)
+        report_findings = apply_policy(findings, config.policy)
+        if any(f.severity == "fail" for f in report_findings):
+            return RecordOutcome(Report("record", report_findings,
+                                        notes=("nothing written: the lock and baselines are unchanged",)), False)
+        if run:
+            for _out, data in pending:
+                store.put(data)
+        lock = Lock(
+            interpreter=capture.environment.interpreter,
+            platform=capture.environment.platform,
+            packages=capture.environment.packages,
+            recorded=timestamp(),
+            holotype=__version__,
+            project_seed=config.seed,
+            data=capture.data.records,
+            code=capture.code.records,
+            analyses=analyses,
+            history=list(old.history) if old is not None else [],
+        )
+        write_lock(root / LOCK_NAME, lock)
+    notes = [n for n in (seed_note,) if n]
+    used = sum(p.used for p in lock.packages.values())
+    notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
+                 f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
+                 f"{len(lock.analyses)} analyses")
+    return RecordOutcome(Report("record", report_findings, notes=tuple(notes)), True)

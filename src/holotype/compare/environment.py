@@ -1,0 +1,75 @@
+"""Recorded environment against the one found now: interpreter, platform, packages."""
+
+from __future__ import annotations
+
+from holotype.findings import Finding
+from holotype.records import Interpreter, PackageRecord, PlatformInfo
+
+
+def compare_interpreter(old: Interpreter, new: Interpreter) -> list[Finding]:
+    out: list[Finding] = []
+    if old.implementation != new.implementation:
+        out.append(Finding("interpreter", "implementation", "interpreter.implementation",
+                           f"implementation {old.implementation} recorded, {new.implementation} found",
+                           old.implementation, new.implementation))
+    if old.minor != new.minor:
+        out.append(Finding("interpreter", "version", "interpreter.minor",
+                           f"Python {old.version} recorded, {new.version} found (a different minor version)",
+                           old.version, new.version))
+    elif old.version != new.version:
+        out.append(Finding("interpreter", "version", "interpreter.patch",
+                           f"Python {old.version} recorded, {new.version} found (patch release)",
+                           old.version, new.version))
+    for attr in ("compiler", "abi"):
+        a, b = getattr(old, attr), getattr(new, attr)
+        if a != b and old.minor == new.minor:
+            out.append(Finding("interpreter", attr, "interpreter.build", f"{attr} {a!r} recorded, {b!r} found", a, b))
+    return out
+
+
+def compare_platform(old: PlatformInfo, new: PlatformInfo) -> list[Finding]:
+    out: list[Finding] = []
+    for attr, kind in (("system", "platform.system"), ("machine", "platform.machine"), ("release", "platform.release")):
+        a, b = getattr(old, attr), getattr(new, attr)
+        if a != b:
+            out.append(Finding("platform", attr, kind, f"{attr} {a} recorded, {b} found", a, b))
+    if (old.libc, old.libc_version) != (new.libc, new.libc_version):
+        out.append(Finding("platform", "libc", "platform.libc",
+                           f"C library {old.libc_text} recorded, {new.libc_text} found", old.libc_text, new.libc_text))
+    return out
+
+
+def _direction(old: str, new: str) -> str:
+    from packaging.version import InvalidVersion, Version
+
+    try:
+        a, b = Version(old), Version(new)
+    except InvalidVersion:
+        return "changed"
+    return "upgraded" if b > a else "downgraded" if b < a else "changed"
+
+
+def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord]) -> list[Finding]:
+    """Drift of every recorded package; its kind depends on whether the project uses it."""
+    out: list[Finding] = []
+    for name in sorted(old):
+        rec = old[name]
+        kind = "package.used" if rec.used else "package.unrelated"
+        role = "" if rec.used else " (not used by the analysis)"
+        now = new.get(name)
+        if now is None:
+            out.append(Finding("package", name, kind, f"version {rec.version} recorded, not installed{role}",
+                               rec.version, None))
+            continue
+        if now.version != rec.version:
+            out.append(Finding("package", name, kind,
+                               f"version {rec.version} recorded, {now.version} found "
+                               f"({_direction(rec.version, now.version)}){role}", rec.version, now.version))
+        if now.origin != rec.origin:
+            out.append(Finding("package", name, kind,
+                               f"origin {rec.origin.describe()} recorded, {now.origin.describe()} found{role}",
+                               rec.origin.describe(), now.origin.describe()))
+    for name in sorted(set(new) - set(old)):
+        out.append(Finding("package", name, "package.added", f"{name} {new[name].version} installed since the record",
+                           None, new[name].version))
+    return out

@@ -1,0 +1,138 @@
+"""Tolerance settings and the rules that choose them per output and column (no NumPy here)."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field, replace
+from fnmatch import fnmatchcase
+from typing import Any
+
+NUMERIC_KEYS = ("atol", "rtol", "ulps", "digits")
+RULE_KEYS = (*NUMERIC_KEYS, "sign_free", "key", "ignore")
+
+# Why these defaults (see docs/tolerances.md): last-bit noise from another BLAS or libm is
+# a few ULPs, about 1e-15 relative, and sums of a million terms may grow it a thousand-fold;
+# 1e-9 relative leaves that room six orders over, while a real change (one edited datum,
+# a changed method) moves a statistic by far more. atol covers results that should be zero.
+DEFAULT_RTOL = 1e-9
+DEFAULT_ATOL = 1e-12
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """What passes as equal for one value: it passes when it meets at least one numeric criterion set."""
+
+    atol: float | None = None
+    rtol: float | None = None
+    ulps: int | None = None
+    digits: float | None = None
+    sign_free: bool = False
+    key: tuple[str, ...] = ()
+    ignore: tuple[str, ...] = ()
+
+    @property
+    def exact(self) -> bool:
+        return all(getattr(self, k) is None for k in NUMERIC_KEYS)
+
+    def overlay(self, settings: dict[str, Any]) -> Tolerance:
+        """This tolerance with the keys set in `settings` replaced."""
+        return replace(self, **settings) if settings else self
+
+    def summary(self) -> dict[str, Any]:
+        """The set keys only, for the lockfile and reports."""
+        out: dict[str, Any] = {}
+        for name in RULE_KEYS:
+            value = getattr(self, name)
+            if value is None or value == () or value is False:
+                continue
+            out[name] = list(value) if isinstance(value, tuple) else value
+        return out
+
+    def describe(self) -> str:
+        parts = [f"{k}={getattr(self, k):g}" for k in NUMERIC_KEYS if getattr(self, k) is not None]
+        if self.sign_free:
+            parts.append("sign-free")
+        return ", ".join(parts) or "exact"
+
+
+DEFAULT_TOLERANCE = Tolerance(atol=DEFAULT_ATOL, rtol=DEFAULT_RTOL)
+
+
+@dataclass(frozen=True)
+class Rule:
+    """One [[rules]] entry: a glob on the output path, optionally ':' and a column or JSON path glob."""
+
+    match: str
+    settings: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def output_glob(self) -> str:
+        return self.match.split(":", 1)[0]
+
+    @property
+    def column_glob(self) -> str | None:
+        parts = self.match.split(":", 1)
+        return parts[1] if len(parts) == 2 else None
+
+    def applies_to(self, output: str, column: str | None) -> bool:
+        if not fnmatchcase(output, self.output_glob):
+            return False
+        glob = self.column_glob
+        if glob is None:
+            return True
+        return column is not None and fnmatchcase(column, glob)
+
+
+@dataclass(frozen=True)
+class RuleBook:
+    """The project default plus ordered rules; later rules win key by key."""
+
+    default: Tolerance = DEFAULT_TOLERANCE
+    rules: tuple[Rule, ...] = ()
+
+    def for_output(self, output: str) -> Tolerance:
+        """Settings from rules that name the whole output (no column part)."""
+        tol = self.default
+        for rule in self.rules:
+            if rule.column_glob is None and rule.applies_to(output, None):
+                tol = tol.overlay(rule.settings)
+        return tol
+
+    def for_column(self, output: str, column: str) -> Tolerance:
+        tol = self.default
+        for rule in self.rules:
+            if rule.applies_to(output, column):
+                tol = tol.overlay(rule.settings)
+        return tol
+
+    def has_column_rules(self, output: str) -> bool:
+        return any(r.column_glob is not None and fnmatchcase(output, r.output_glob) for r in self.rules)
+
+
+def parse_rule_settings(table: dict[str, Any], where: str) -> dict[str, Any]:
+    """Validate rule keys from config or CLI flags; raise ValueError with a message naming `where`."""
+    out: dict[str, Any] = {}
+    for name, value in table.items():
+        if name in ("atol", "rtol", "digits"):
+            if isinstance(value, bool) or not isinstance(value, (int, float)):
+                raise ValueError(f"'{where}{name}' should be a number, found {type(value).__name__}")
+            value = float(value)
+            if math.isnan(value) or math.isinf(value) or value < 0:
+                raise ValueError(f"'{where}{name}' should be a finite number >= 0, found {value}")
+            out[name] = value
+        elif name == "ulps":
+            if isinstance(value, bool) or not isinstance(value, int) or value < 0 or value > 2**62:
+                raise ValueError(f"'{where}ulps' should be a whole number >= 0, found {value!r}")
+            out[name] = value
+        elif name == "sign_free":
+            if not isinstance(value, bool):
+                raise ValueError(f"'{where}sign_free' should be true or false, found {value!r}")
+            out[name] = value
+        elif name in ("key", "ignore"):
+            items = [value] if isinstance(value, str) else value
+            if not isinstance(items, list) or not all(isinstance(x, str) and x for x in items):
+                raise ValueError(f"'{where}{name}' should be a list of column names")
+            out[name] = tuple(items)
+        else:
+            raise KeyError(name)
+    return out

@@ -1,0 +1,283 @@
+"""The user's holotype.toml (or [tool.holotype] in pyproject.toml), read and validated."""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path, PurePosixPath
+from typing import Any
+
+from holotype.compare.tolerance import DEFAULT_TOLERANCE, RULE_KEYS, Rule, RuleBook, Tolerance, parse_rule_settings
+from holotype.errors import ConfigError
+from holotype.findings.policy import DEFAULT_SEVERITY, SEVERITIES
+
+CONFIG_NAME = "holotype.toml"
+TOP_KEYS = (
+    "python", "data", "code", "exclude", "seed", "threads", "seed_globals",
+    "tolerance", "rules", "analyses", "policy", "allow_outside",
+)
+ANALYSIS_KEYS = ("run", "outputs", "inputs", "timeout")
+MAX_SEED = 2**63 - 1
+_NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
+
+
+@dataclass(frozen=True)
+class Analysis:
+    name: str
+    run: str
+    outputs: tuple[str, ...]
+    inputs: tuple[str, ...] = ()
+    timeout: float | None = None
+
+
+@dataclass(frozen=True)
+class Config:
+    root: Path
+    source: Path | None  # None when the project has no config (environment-only use)
+    python: str | None = None
+    data: tuple[str, ...] = ()
+    code: tuple[str, ...] | None = None
+    exclude: tuple[str, ...] = ()
+    seed: int | None = None
+    threads: int | None = None
+    seed_globals: bool = False
+    rulebook: RuleBook = field(default_factory=RuleBook)
+    analyses: tuple[Analysis, ...] = ()
+    policy: dict[str, str] = field(default_factory=dict)
+    allow_outside: bool = False
+    warnings: tuple[str, ...] = ()
+
+    def analysis(self, name: str) -> Analysis:
+        for a in self.analyses:
+            if a.name == name:
+                return a
+        raise ConfigError(f"no analysis named '{name}' (have: {', '.join(a.name for a in self.analyses) or 'none'})",
+                          self.source)
+
+
+def _suggest(name: str, known: tuple[str, ...] | list[str]) -> str:
+    close = difflib.get_close_matches(name, list(known), n=1)
+    return f" (did you mean '{close[0]}'?)" if close else ""
+
+
+class _Validator:
+    def __init__(self, path: Path, root: Path, allow_outside: bool) -> None:
+        self.path = path
+        self.root = root
+        self.allow_outside = allow_outside
+        self.warnings: list[str] = []
+
+    def fail(self, message: str) -> ConfigError:
+        return ConfigError(message, self.path)
+
+    def unknown(self, table: dict[str, Any], known: tuple[str, ...], where: str) -> None:
+        for key in table:
+            if key not in known:
+                self.warnings.append(f"{self.path}: unknown key '{where}{key}'{_suggest(key, known)}; ignored")
+
+    def project_path(self, value: Any, where: str, *, glob: bool = True) -> str:
+        if not isinstance(value, str) or not value:
+            raise self.fail(f"{where} should be a non-empty path string, found {value!r}")
+        if "\x00" in value:
+            raise self.fail(f"{where} contains a NUL byte")
+        if "\\" in value:
+            raise self.fail(f"{where} '{value}' uses backslashes; write project paths with '/'")
+        if re.match(r"^[A-Za-z]:", value):
+            raise self.fail(f"{where} '{value}' is a Windows drive path; use a path inside the project")
+        pure = PurePosixPath(value)
+        leaves = pure.is_absolute() or ".." in pure.parts
+        if leaves and not self.allow_outside:
+            raise self.fail(f"{where} '{value}' leaves the project; set allow_outside = true to permit it")
+        return value
+
+    def paths(self, doc: dict[str, Any], key: str, where: str = "") -> tuple[str, ...]:
+        value = doc.get(key, [])
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list):
+            raise self.fail(f"'{where}{key}' should be a list of paths, found {type(value).__name__}")
+        return tuple(self.project_path(v, f"'{where}{key}' entry") for v in value)
+
+
+def _int(value: Any, where: str, v: _Validator, low: int, high: int) -> int:
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise v.fail(f"'{where}' should be a whole number, found {value!r}")
+    if not low <= value <= high:
+        raise v.fail(f"'{where}' should be between {low} and {high}, found {value}")
+    return value
+
+
+def _tolerance(table: Any, where: str, v: _Validator, *, is_rule: bool) -> dict[str, Any]:
+    if not isinstance(table, dict):
+        raise v.fail(f"'{where}' should be a table")
+    known = (("match",) if is_rule else ()) + RULE_KEYS
+    v.unknown(table, known, f"{where}.")
+    settings = {k: val for k, val in table.items() if k in RULE_KEYS}
+    try:
+        return parse_rule_settings(settings, f"{where}.")
+    except ValueError as exc:
+        raise v.fail(str(exc)) from None
+
+
+def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
+    """Validate the holotype table and build a Config."""
+    allow_outside = doc.get("allow_outside", False)
+    v = _Validator(source, root, bool(allow_outside))
+    if not isinstance(allow_outside, bool):
+        raise v.fail(f"'allow_outside' should be true or false, found {allow_outside!r}")
+    v.unknown(doc, TOP_KEYS, "")
+    python = doc.get("python")
+    if python is not None and (not isinstance(python, str) or not python or "\x00" in python):
+        raise v.fail(f"'python' should be a path to an interpreter, found {python!r}")
+    seed = doc.get("seed")
+    if seed is not None:
+        seed = _int(seed, "seed", v, 0, MAX_SEED)
+    threads = doc.get("threads")
+    if threads is not None:
+        threads = _int(threads, "threads", v, 1, 4096)
+    seed_globals = doc.get("seed_globals", False)
+    if not isinstance(seed_globals, bool):
+        raise v.fail(f"'seed_globals' should be true or false, found {seed_globals!r}")
+    code = v.paths(doc, "code") if "code" in doc else None
+
+    default = DEFAULT_TOLERANCE
+    if "tolerance" in doc:
+        settings = _tolerance(doc["tolerance"], "tolerance", v, is_rule=False)
+        default = Tolerance().overlay(settings) if any(k in settings for k in ("atol", "rtol", "ulps", "digits")) \
+            else DEFAULT_TOLERANCE.overlay(settings)
+    rules: list[Rule] = []
+    raw_rules = doc.get("rules", [])
+    if not isinstance(raw_rules, list):
+        raise v.fail("'rules' should be an array of tables ([[rules]])")
+    for i, table in enumerate(raw_rules):
+        where = f"rules[{i}]"
+        settings = _tolerance(table, where, v, is_rule=True)
+        match = table.get("match")
+        if not isinstance(match, str) or not match or "\x00" in match:
+            raise v.fail(f"'{where}.match' should be a glob like 'results/*.csv:PC*'")
+        rules.append(Rule(match=match, settings=settings))
+
+    analyses: list[Analysis] = []
+    raw_analyses = doc.get("analyses", {})
+    if not isinstance(raw_analyses, dict):
+        raise v.fail("'analyses' should be a table of [analyses.NAME] tables")
+    for name, table in raw_analyses.items():
+        where = f"analyses.{name}"
+        if not _NAME.match(name):
+            raise v.fail(f"analysis name '{name}' should use letters, digits, '.', '_' or '-'")
+        if not isinstance(table, dict):
+            raise v.fail(f"'{where}' should be a table")
+        v.unknown(table, ANALYSIS_KEYS, where + ".")
+        run = table.get("run")
+        if not isinstance(run, str) or not run.strip():
+            raise v.fail(f"'{where}.run' should be the command to run, e.g. \"python analysis/{name}.py\"")
+        if "\x00" in run:
+            raise v.fail(f"'{where}.run' contains a NUL byte")
+        outputs = v.paths(table, "outputs", where + ".")
+        if not outputs:
+            raise v.fail(f"'{where}.outputs' should list at least one output file")
+        timeout = table.get("timeout")
+        if timeout is not None:
+            if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or math.isnan(timeout) \
+                    or not 0 < timeout <= 7 * 86400:
+                raise v.fail(f"'{where}.timeout' should be seconds above 0 (at most a week), found {timeout!r}")
+            timeout = float(timeout)
+        analyses.append(Analysis(name, run, outputs, v.paths(table, "inputs", where + "."), timeout))
+    seen_outputs: dict[str, str] = {}
+    for a in analyses:
+        for out in a.outputs:
+            if out in seen_outputs:
+                raise v.fail(f"output '{out}' is declared by both '{seen_outputs[out]}' and '{a.name}'")
+            seen_outputs[out] = a.name
+
+    policy_table = doc.get("policy", {})
+    if not isinstance(policy_table, dict):
+        raise v.fail("'policy' should be a table of finding kinds to fail/warn/info")
+    policy: dict[str, str] = {}
+    for kind, severity in policy_table.items():
+        if kind not in DEFAULT_SEVERITY:
+            raise v.fail(f"'policy.{kind}' is not a finding kind{_suggest(kind, list(DEFAULT_SEVERITY))}")
+        if severity not in SEVERITIES:
+            raise v.fail(f"'policy.{kind}' should be one of fail, warn, info; found {severity!r}")
+        policy[kind] = severity
+
+    return Config(
+        root=root,
+        source=source,
+        python=python,
+        data=v.paths(doc, "data"),
+        code=code,
+        exclude=tuple(_glob_list(doc, "exclude", v)),
+        seed=seed,
+        threads=threads,
+        seed_globals=seed_globals,
+        rulebook=RuleBook(default=default, rules=tuple(rules)),
+        analyses=tuple(analyses),
+        policy=policy,
+        allow_outside=bool(allow_outside),
+        warnings=tuple(v.warnings),
+    )
+
+
+def _glob_list(doc: dict[str, Any], key: str, v: _Validator) -> list[str]:
+    value = doc.get(key, [])
+    if isinstance(value, str):
+        value = [value]
+    if not isinstance(value, list) or not all(isinstance(x, str) and x and "\x00" not in x for x in value):
+        raise v.fail(f"'{key}' should be a list of glob patterns")
+    return value
+
+
+def _read_toml(path: Path) -> dict[str, Any]:
+    try:
+        raw = path.read_bytes()
+    except OSError as exc:
+        raise ConfigError(f"cannot read: {exc.strerror}", path) from None
+    try:
+        return tomllib.loads(raw.decode("utf-8"))
+    except UnicodeDecodeError as exc:
+        raise ConfigError(f"not UTF-8 text (byte {exc.start})", path) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"invalid TOML: {exc}", path) from None
+
+
+def find_config_source(root: Path) -> tuple[Path | None, dict[str, Any] | None, list[str]]:
+    """Which file holds the configuration, its holotype table, and warnings about the choice."""
+    own = root / CONFIG_NAME
+    pyproject = root / "pyproject.toml"
+    warnings: list[str] = []
+    in_pyproject = None
+    if pyproject.is_file():
+        doc = _read_toml(pyproject)
+        tool = doc.get("tool", {})
+        if isinstance(tool, dict) and "holotype" in tool:
+            in_pyproject = tool["holotype"]
+            if not isinstance(in_pyproject, dict):
+                raise ConfigError("[tool.holotype] should be a table", pyproject)
+    if own.exists():
+        if in_pyproject is not None:
+            warnings.append(f"{own}: both holotype.toml and [tool.holotype] in pyproject.toml exist; "
+                            "using holotype.toml")
+        return own, _read_toml(own), warnings
+    if in_pyproject is not None:
+        return pyproject, in_pyproject, warnings
+    return None, None, warnings
+
+
+def load_config(root: Path, *, required: bool = True) -> Config:
+    """Load the project's configuration; with required=False a project without one gets defaults."""
+    root = Path(root)
+    if not root.is_dir():
+        raise ConfigError("project folder does not exist", root)
+    source, doc, warnings = find_config_source(root)
+    if source is None or doc is None:
+        if required:
+            raise ConfigError("no holotype.toml or [tool.holotype] here; run 'holotype start' first", root)
+        return Config(root=root, source=None)
+    config = config_from_dict(doc, root, source)
+    if warnings:
+        object.__setattr__(config, "warnings", tuple(warnings) + config.warnings)
+    return config

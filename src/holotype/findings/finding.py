@@ -1,0 +1,99 @@
+"""The Finding type: one thing holotype noticed, with numbers for output comparisons."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field, replace
+from typing import Any
+
+AREAS = ("interpreter", "platform", "package", "data", "code", "seed", "analysis", "output", "lockfile")
+
+
+@dataclass(frozen=True)
+class OutputStats:
+    """How an output compared with its baseline."""
+
+    compared: int = 0
+    mismatches: int = 0
+    max_abs_err: float = 0.0
+    max_rel_err: float = 0.0
+    worst: str | None = None
+    min_lre: float | None = None  # fewest correct significant digits seen (log relative error)
+    tolerance: str = ""
+    # counts of values per decade of relative error: {"1e-16": 3, ...}; "exact" for zero error
+    error_decades: dict[str, int] = field(default_factory=dict)
+    columns: tuple[dict[str, Any], ...] = ()  # per column / path / array detail
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One observation. `kind` names the policy entry that decides its severity."""
+
+    area: str
+    subject: str
+    kind: str
+    message: str
+    expected: Any = None
+    actual: Any = None
+    severity: str = "info"
+    stats: OutputStats | None = None
+
+    def with_severity(self, severity: str) -> Finding:
+        return replace(self, severity=severity)
+
+    def to_dict(self) -> dict[str, Any]:
+        """The interface's JSON shape for one finding."""
+        out: dict[str, Any] = {
+            "area": self.area,
+            "subject": self.subject,
+            "severity": self.severity,
+            "kind": self.kind,
+            "message": self.message,
+            "expected": self.expected,
+            "actual": self.actual,
+        }
+        if self.stats is not None:
+            s = self.stats
+            out.update(
+                compared=s.compared,
+                mismatches=s.mismatches,
+                max_abs_err=_finite_or_text(s.max_abs_err),
+                max_rel_err=_finite_or_text(s.max_rel_err),
+                worst=s.worst,
+                min_lre=s.min_lre,
+                tolerance=s.tolerance,
+                error_decades=s.error_decades,
+                columns=list(s.columns),
+            )
+        return out
+
+
+def _finite_or_text(x: float) -> float | str:
+    # JSON has no inf/nan; keep the meaning as text
+    if x != x:
+        return "nan"
+    if x in (float("inf"), float("-inf")):
+        return "inf" if x > 0 else "-inf"
+    return x
+
+
+@dataclass(frozen=True)
+class Report:
+    """What a command hands to a renderer."""
+
+    command: str
+    findings: tuple[Finding, ...]
+    title: str = ""
+    notes: tuple[str, ...] = ()
+
+    @property
+    def ok(self) -> bool:
+        return not any(f.severity == "fail" for f in self.findings)
+
+    def counts(self) -> dict[str, int]:
+        out = {"fail": 0, "warn": 0, "info": 0}
+        for f in self.findings:
+            out[f.severity] += 1
+        return out
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"ok": self.ok, "command": self.command, "findings": [f.to_dict() for f in self.findings]}

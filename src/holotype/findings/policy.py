@@ -1,0 +1,71 @@
+"""Policy in one place: which kind of finding is a failure, a warning or information.
+
+A project overrides any entry with a [policy] table in its config, e.g.
+`"package.unrelated" = "fail"`; `--strict` turns every remaining warning into a failure.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable
+
+from holotype.findings.finding import Finding
+
+SEVERITIES = ("fail", "warn", "info")
+
+DEFAULT_SEVERITY: dict[str, str] = {
+    # interpreter and platform
+    "interpreter.implementation": "fail",
+    "interpreter.minor": "fail",
+    "interpreter.patch": "warn",
+    "interpreter.build": "warn",
+    "platform.system": "fail",
+    "platform.machine": "fail",
+    "platform.libc": "warn",
+    "platform.release": "info",
+    # packages: "used" = imported by the project's code or declared, and all they require
+    "package.used": "fail",
+    "package.unrelated": "warn",
+    "package.added": "warn",
+    # data and code fingerprints
+    "data.changed": "fail",
+    "data.missing": "fail",
+    "data.added": "warn",
+    "data.renamed": "fail",
+    "data.unreadable": "fail",
+    "data.unstable": "fail",
+    "code.changed": "warn",
+    "code.missing": "warn",
+    "code.added": "warn",
+    "code.unreadable": "warn",
+    "code.unparsable": "info",
+    # seeds, analyses and outputs
+    "seed.changed": "fail",
+    "analysis.failed": "fail",
+    "analysis.missing": "fail",
+    "analysis.changed": "warn",
+    "analysis.nondeterministic": "fail",
+    "output.mismatch": "fail",
+    "output.match": "info",
+    "output.missing": "fail",
+    "output.extra": "warn",
+    "output.shape": "fail",
+    "output.layout": "info",
+    "output.baseline": "fail",
+    "output.unreadable": "fail",
+    # the lockfile itself
+    "lockfile.section": "info",
+    "lockfile.note": "info",
+}
+
+
+def apply_policy(findings: Iterable[Finding], overrides: dict[str, str] | None = None,
+                 *, strict: bool = False) -> tuple[Finding, ...]:
+    """Set each finding's severity from its kind; unknown kinds are failures, to be safe."""
+    table = {**DEFAULT_SEVERITY, **(overrides or {})}
+    out = []
+    for f in findings:
+        severity = table.get(f.kind, "fail")
+        if strict and severity == "warn":
+            severity = "fail"
+        out.append(f.with_severity(severity))
+    return tuple(out)

@@ -1,0 +1,1 @@
+"""Render: findings into text for people (rich) or machines (JSON, JUnit XML, Markdown, HTML)."""

@@ -1,0 +1,71 @@
+"""Findings as a rich table for people: failures first, then warnings, then information."""
+
+from __future__ import annotations
+
+from rich.console import Console, Group, RenderableType
+from rich.table import Table
+from rich.text import Text
+
+from holotype.findings import Finding, Report
+
+SEVERITY_ORDER = {"fail": 0, "warn": 1, "info": 2}
+SEVERITY_STYLE = {"fail": "bold red", "warn": "yellow", "info": "dim"}
+SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
+
+
+def _short(value: object, width: int = 40) -> str:
+    text = "" if value is None else str(value)
+    return text if len(text) <= width else text[: width - 1] + "…"
+
+
+class FindingsTable:
+    """One table of findings; output findings carry their error figures in the message column."""
+
+    def __init__(self, report: Report, *, show_info: bool = True) -> None:
+        self.report = report
+        self.show_info = show_info
+
+    def rows(self) -> list[Finding]:
+        rows = [f for f in self.report.findings if self.show_info or f.severity != "info"]
+        return sorted(rows, key=lambda f: (SEVERITY_ORDER[f.severity], f.area, f.subject))
+
+    def __rich__(self) -> RenderableType:
+        rows = self.rows()
+        parts: list[RenderableType] = []
+        if rows:
+            table = Table(show_edge=False, header_style="bold", pad_edge=False, expand=False)
+            table.add_column("", no_wrap=True)
+            table.add_column("area", no_wrap=True)
+            table.add_column("subject", overflow="fold", max_width=48)
+            table.add_column("what holotype found", overflow="fold")
+            for f in rows:
+                message = Text(f.message)
+                if f.stats is not None and f.stats.error_decades and f.severity != "info":
+                    message.append("\n" + decade_line(f), style="dim")
+                table.add_row(Text(SEVERITY_LABEL[f.severity], style=SEVERITY_STYLE[f.severity]), f.area,
+                              Text(f.subject), message)
+            parts.append(table)
+        for note in self.report.notes:
+            parts.append(Text(note, style="dim"))
+        parts.append(self.verdict())
+        return Group(*parts)
+
+    def verdict(self) -> Text:
+        c = self.report.counts()
+        summary = f"{c['fail']} failed, {c['warn']} warnings, {c['info']} notes"
+        if self.report.ok:
+            word = {"compare": "match", "rerun": "reproduced"}.get(self.report.command, "ok")
+            return Text.assemble((f"{word}: ", "bold green"), summary)
+        word = {"compare": "differ", "rerun": "not reproduced"}.get(self.report.command, "not ok")
+        return Text.assemble((f"{word}: ", "bold red"), summary)
+
+
+def decade_line(f: Finding) -> str:
+    """How the errors spread over decades of relative error, e.g. 'exact 990 · 1e-16 8 · 1e-3 2'."""
+    assert f.stats is not None
+    items = list(f.stats.error_decades.items())
+    return "relative errors: " + " · ".join(f"{k} {v}" for k, v in items) + f" (tolerance {f.stats.tolerance})"
+
+
+def print_report(console: Console, report: Report, *, show_info: bool = True) -> None:
+    console.print(FindingsTable(report, show_info=show_info))
