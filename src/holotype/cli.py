@@ -238,6 +238,36 @@ def check(
     guarded(body)
 
 
+@app.command()
+def compare(
+    expected: Annotated[Path, typer.Argument(help="The recorded file or folder.", show_default=False)],
+    actual: Annotated[Path, typer.Argument(help="The new file or folder.", show_default=False)],
+    atol: Annotated[Optional[float], typer.Option("--atol", help="Absolute tolerance.")] = None,
+    rtol: Annotated[Optional[float], typer.Option("--rtol", help="Tolerance relative to the expected value.")] = None,
+    ulps: Annotated[Optional[int], typer.Option("--ulps", help="Distance in binary64 steps.")] = None,
+    digits: Annotated[Optional[float], typer.Option("--digits", help="Correct significant digits (LRE).")] = None,
+    key: Annotated[Optional[list[str]], typer.Option("--key", help="Match rows by this column (repeatable).")] = None,
+    sign_free: Annotated[Optional[list[str]], typer.Option("--sign-free",
+                                                            help="Columns that may flip sign as a whole.")] = None,
+    ignore: Annotated[Optional[list[str]], typer.Option("--ignore", help="Skip these columns (globs).")] = None,
+    project: ProjectOpt = Path("."),
+    fmt: FormatOpt = Format.text,
+    output: OutputOpt = None,
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """Compare two result files or two folders directly, within tolerances."""
+    session = Session(project, fmt, output, quiet, no_color)
+
+    def body() -> None:
+        from holotype.commands.compare_files import compare_inputs, rulebook_from_flags
+
+        rules = rulebook_from_flags(atol, rtol, ulps, digits, key, sign_free, ignore)
+        session.emit(compare_inputs(project / expected, project / actual, rules))
+
+    guarded(body)
+
+
 def main() -> None:
     """Console-script entry point."""
     app()

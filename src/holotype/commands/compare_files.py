@@ -1,0 +1,49 @@
+"""`holotype compare EXPECTED ACTUAL`: two result files or two folders, judged by the comparison engine."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Any
+
+from holotype.compare.outputs import compare_paths
+from holotype.compare.source import UnreadableOutput
+from holotype.compare.tolerance import NUMERIC_KEYS, DEFAULT_TOLERANCE, Rule, RuleBook, Tolerance, parse_rule_settings
+from holotype.errors import HolotypeError, InputError
+from holotype.findings import Report
+from holotype.findings.policy import apply_policy
+
+
+def rulebook_from_flags(atol: float | None = None, rtol: float | None = None, ulps: int | None = None,
+                        digits: float | None = None, key: list[str] | None = None,
+                        sign_free: list[str] | None = None, ignore: list[str] | None = None) -> RuleBook:
+    """The same rules the config builds, from compare's flags. No numeric flag: the project default."""
+    numeric: dict[str, Any] = {k: v for k, v in (("atol", atol), ("rtol", rtol), ("ulps", ulps),
+                                                   ("digits", digits)) if v is not None}
+    settings: dict[str, Any] = dict(numeric)
+    if key:
+        settings["key"] = list(key)
+    if ignore:
+        settings["ignore"] = list(ignore)
+    try:
+        parsed = parse_rule_settings(settings, "--")
+    except ValueError as exc:
+        raise HolotypeError(str(exc).replace("'--", "'--").replace("_", "-")) from None
+    base = Tolerance() if any(k in parsed for k in NUMERIC_KEYS) else DEFAULT_TOLERANCE
+    default = base.overlay(parsed)
+    rules = tuple(Rule(match=f"*:{glob}", settings={"sign_free": True}) for glob in (sign_free or []))
+    rules += tuple(Rule(match=glob, settings={"sign_free": True}) for glob in (sign_free or []))
+    return RuleBook(default=default, rules=rules)
+
+
+def compare_inputs(expected: Path, actual: Path, rules: RuleBook) -> Report:
+    """Compare files or folders; unreadable or malformed inputs stop with exit 2."""
+    for p in (expected, actual):
+        if not p.exists():
+            raise InputError("no such file or folder", p)
+    if expected.is_dir() != actual.is_dir():
+        raise InputError("compare two files or two folders, not one of each", actual)
+    try:
+        findings = compare_paths(expected, actual, rules)
+    except UnreadableOutput as exc:
+        raise InputError(exc.message, exc.label) from None
+    return Report("compare", apply_policy(findings))

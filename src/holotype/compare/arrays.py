@@ -1,0 +1,104 @@
+"""NumPy .npy and .npz outputs: dtype and shape first, then values; never unpickled.
+
+For sign-free arrays the unit that may flip is a slice along the last axis (a column of a
+loadings matrix); a 1-D array flips as a whole.
+"""
+
+from __future__ import annotations
+
+import zipfile
+from typing import Any
+
+import numpy as np
+
+from holotype.compare.source import Source, UnreadableOutput
+from holotype.compare.tables import ColumnJudge, TableOutcome
+from holotype.compare.tolerance import RuleBook
+
+
+def load_arrays(src: Source) -> dict[str, np.ndarray]:
+    """{name: array}; a .npy file holds one array named 'array'. allow_pickle is always False."""
+    try:
+        loaded = np.load(src.open(), allow_pickle=False)
+        if isinstance(loaded, np.ndarray):
+            return {"array": loaded}
+        with loaded as archive:
+            return {name: archive[name] for name in archive.files}
+    except (ValueError, OSError, EOFError, zipfile.BadZipFile, KeyError) as exc:
+        text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
+        if "allow_pickle" in text or "Object arrays" in text:
+            text = "holds Python objects (object dtype); holotype never unpickles"
+        raise UnreadableOutput(f"not a readable NumPy file: {text}", src.label) from None
+
+
+def _index_text(shape: tuple[int, ...], flat: int) -> str:
+    if not shape:
+        return "()"
+    return "(" + ", ".join(str(int(i)) for i in np.unravel_index(flat, shape)) + ")"
+
+
+def _slice_index(sub_shape: tuple[int, ...], flat: int, last: int) -> str:
+    head = [str(int(i)) for i in np.unravel_index(flat, sub_shape)] if sub_shape else []
+    return "(" + ", ".join([*head, str(last)]) + ")"
+
+
+def _numeric_kind(dtype: np.dtype[Any]) -> bool:
+    return dtype.kind in "biuf"
+
+
+def compare_arrays(output: str, expected: Source, actual: Source, rules: RuleBook) -> TableOutcome:
+    outcome = TableOutcome()
+    e_all, a_all = load_arrays(expected), load_arrays(actual)
+    for name in e_all:
+        if name not in a_all:
+            outcome.problems.append(("output.shape", f"array '{name}' missing", name, None))
+    for name in a_all:
+        if name not in e_all:
+            outcome.problems.append(("output.shape", f"new array '{name}'", None, name))
+    for name in (n for n in e_all if n in a_all):
+        e, a = e_all[name], a_all[name]
+        label = "" if name == "array" and len(e_all) == 1 else f"{name} "
+        if e.shape != a.shape:
+            outcome.problems.append(("output.shape", f"{label}shape {e.shape} recorded, {a.shape} found",
+                                     list(e.shape), list(a.shape)))
+            continue
+        tol = rules.for_column(output, name) if label else rules.for_output(output)
+        if e.dtype != a.dtype:
+            same_family = (_numeric_kind(e.dtype) and _numeric_kind(a.dtype)) or (e.dtype.kind == a.dtype.kind == "c")
+            if not same_family:
+                outcome.problems.append(("output.shape", f"{label}dtype {e.dtype} recorded, {a.dtype} found",
+                                         str(e.dtype), str(a.dtype)))
+                continue
+            outcome.notes.append(f"{label}dtype {e.dtype} recorded, {a.dtype} found; values compared as float64")
+        if e.dtype.kind == "c":
+            parts = [("real", e.real, a.real), ("imag", e.imag, a.imag)]
+        elif _numeric_kind(e.dtype):
+            parts = [("", e, a)]
+        else:  # strings, bytes, dates, structured records: exact
+            judge_ = ColumnJudge(name, tol)
+            ef, af = e.reshape(-1), a.reshape(-1)
+            unequal = np.where(ef != af)[0] if ef.dtype == af.dtype else np.arange(ef.size)
+            judge_.tally.compared += ef.size - unequal.size
+            judge_.tally.decades["exact"] = ef.size - unequal.size
+            for i in unequal[:1000].tolist():
+                judge_.exact(False, f"{label}index {_index_text(e.shape, i)}", ef[i].item(), af[i].item())
+            outcome.tallies.append(judge_.result())
+            continue
+        for part, ep, ap in parts:
+            ep64 = np.asarray(ep, dtype=np.float64)
+            ap64 = np.asarray(ap, dtype=np.float64)
+            suffix = f".{part}" if part else ""
+            if ep64.ndim >= 2 and tol.sign_free:
+                # each last-axis slice is a unit that may flip as a whole
+                for j in range(ep64.shape[-1]):
+                    judge_ = ColumnJudge(f"{label}[..., {j}]{suffix}".strip(), tol)
+                    es, as_ = ep64[..., j].reshape(-1), ap64[..., j].reshape(-1)
+                    sub_shape = ep64.shape[:-1]
+                    judge_.numeric(es, as_, lambda i, j=j, s=sub_shape: f"{label}index {_slice_index(s, i, j)}")
+                    outcome.tallies.append(judge_.result())
+            else:
+                judge_ = ColumnJudge(f"{label}{suffix}".strip() or "values", tol)
+                judge_.numeric(ep64.reshape(-1), ap64.reshape(-1),
+                               lambda i, s=ep64.shape: f"{label}index {_index_text(s, i)}{suffix}")
+                outcome.tallies.append(judge_.result())
+    return outcome

@@ -1,0 +1,129 @@
+"""JSON outputs: every leaf compared at its path (`tests.welch.p_value`, `rows[3].mean`).
+
+Values are grouped into columns by wildcarding list indices (`rows[*].mean`); in a list of
+lists the last index is kept (`loadings[*][2]`), so a matrix column is one unit, as in a table.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import re
+from fnmatch import fnmatchcase
+from typing import Any
+
+import numpy as np
+
+from holotype.compare.source import Source, UnreadableOutput
+from holotype.compare.tables import ColumnJudge, TableOutcome
+from holotype.compare.tally import Tally
+from holotype.compare.tolerance import RuleBook
+
+_PLAIN_KEY = re.compile(r"^[A-Za-z_][A-Za-z0-9_-]*$")
+SHOWN = 5
+
+
+def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
+    out: dict[str, Any] = {}
+    for k, v in pairs:
+        if k in out:
+            raise ValueError(f"duplicate key '{k}'")
+        out[k] = v
+    return out
+
+
+def load_json(src: Source) -> Any:
+    """Parse strictly: UTF-8, no duplicate keys (NaN and Infinity literals, as Python writes them, are allowed)."""
+    raw = src.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        raise UnreadableOutput(f"not UTF-8 text (byte {exc.start})", src.label) from None
+    try:
+        return json.loads(text, object_pairs_hook=_no_duplicates)
+    except json.JSONDecodeError as exc:
+        raise UnreadableOutput(f"invalid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}",
+                               src.label) from None
+    except (ValueError, RecursionError) as exc:
+        raise UnreadableOutput(f"invalid JSON: {exc}", src.label) from None
+
+
+def _key_part(key: str) -> str:
+    return f".{key}" if _PLAIN_KEY.match(key) else "[" + json.dumps(key) + "]"
+
+
+def flatten(doc: Any) -> dict[str, tuple[Any, str]]:
+    """path -> (leaf value, column path). Empty containers are leaves too, so their disappearance shows."""
+    out: dict[str, tuple[Any, str]] = {}
+    stack: list[tuple[str, str, Any]] = [("", "", doc)]
+    while stack:
+        path, column, value = stack.pop()
+        if isinstance(value, dict) and value:
+            for k in reversed(list(value)):
+                stack.append((path + _key_part(k), column + _key_part(k), value[k]))
+        elif isinstance(value, list) and value:
+            for i in reversed(range(len(value))):
+                stack.append((path + f"[{i}]", column + "[*]", value[i]))
+        else:
+            out[path.lstrip(".") or "$"] = (value, column.lstrip(".") or "$")
+    return out
+
+
+def _columns_for(doc: Any) -> dict[str, tuple[Any, str]]:
+    flat = flatten(doc)
+    fixed: dict[str, tuple[Any, str]] = {}
+    for path, (value, column) in flat.items():
+        # keep the final index where the value sits directly in a row of a matrix
+        m = re.search(r"\[(\d+)\]\[(\d+)\]$", path)
+        if m:
+            column = column[: -len("[*]")] + f"[{m.group(2)}]"
+        fixed[path] = (value, column)
+    return fixed
+
+
+def _is_number(v: Any) -> bool:
+    return isinstance(v, (int, float)) and not isinstance(v, bool)
+
+
+def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook) -> TableOutcome:
+    outcome = TableOutcome()
+    e = _columns_for(load_json(expected))
+    a = _columns_for(load_json(actual))
+    whole = rules.for_output(output)
+    missing = [p for p in e if p not in a]
+    extra = [p for p in a if p not in e]
+    if missing:
+        outcome.problems.append(("output.shape", f"{len(missing)} value(s) missing: " + ", ".join(missing[:SHOWN])
+                                 + (f" and {len(missing) - SHOWN} more" if len(missing) > SHOWN else ""),
+                                 len(missing), None))
+    if extra:
+        outcome.problems.append(("output.shape", f"{len(extra)} new value(s): " + ", ".join(extra[:SHOWN])
+                                 + (f" and {len(extra) - SHOWN} more" if len(extra) > SHOWN else ""), None, len(extra)))
+    groups: dict[str, list[str]] = {}
+    for path, (_value, column) in e.items():
+        if path in a and not any(fnmatchcase(path, g) for g in whole.ignore):
+            groups.setdefault(column, []).append(path)
+    tallies: list[Tally] = []
+    for column, paths in groups.items():
+        tol = rules.for_column(output, paths[0])
+        judge_ = ColumnJudge(column, tol)
+        numeric = [p for p in paths if _is_number(e[p][0]) and _is_number(a[p][0])]
+        if numeric:
+            ev = np.array([_as_float(e[p][0]) for p in numeric], dtype=np.float64)
+            av = np.array([_as_float(a[p][0]) for p in numeric], dtype=np.float64)
+            judge_.numeric(ev, av, lambda i, ps=numeric: ps[i])
+        for p in paths:
+            if _is_number(e[p][0]) and _is_number(a[p][0]):
+                continue
+            equal = type(e[p][0]) is type(a[p][0]) and e[p][0] == a[p][0]
+            judge_.exact(equal, p, e[p][0], a[p][0])
+        tallies.append(judge_.result())
+    outcome.tallies = tallies
+    return outcome
+
+
+def _as_float(v: Any) -> float:
+    try:
+        return float(v)
+    except OverflowError:  # an integer beyond binary64: compare its sign and magnitude as infinity
+        return math.copysign(math.inf, v)

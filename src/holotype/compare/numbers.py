@@ -1,0 +1,95 @@
+"""The numeric kernel: value-by-value errors and the tolerance test, vectorised with NumPy.
+
+A value passes when it meets at least one numeric criterion that is set:
+  atol    |actual - expected| <= atol
+  rtol    |actual - expected| <= rtol * |expected|     (relative to the RECORDED value)
+  ulps    distance in IEEE-754 binary64 ordering <= ulps
+  digits  log relative error (correct significant digits) >= digits
+NaN equals NaN; an infinity equals only the same infinity; with no criterion set, equality is exact.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from holotype.compare.tolerance import Tolerance
+
+# log10(2**53): binary64 holds at most this many correct significant digits; an exact match scores it.
+MAX_LRE = 15.95
+
+_SIGN = np.int64(-0x8000000000000000)
+
+
+def ordered_bits(x: np.ndarray) -> np.ndarray:
+    """Map binary64 values to int64 so that integer order equals numeric order (-0.0 and +0.0 map to 0)."""
+    bits = np.ascontiguousarray(x, dtype=np.float64).view(np.int64)
+    return np.where(bits < 0, _SIGN - bits, bits)
+
+
+def ulp_distance(expected: np.ndarray, actual: np.ndarray) -> np.ndarray:
+    """How many representable binary64 values lie between the two (as uint64)."""
+    a = ordered_bits(actual).astype(np.uint64)
+    e = ordered_bits(expected).astype(np.uint64)
+    forward = a - e  # wraps modulo 2**64; the shorter way round is the distance
+    backward = e - a
+    return np.minimum(forward, backward)
+
+
+def log_relative_error(expected: np.ndarray, actual: np.ndarray) -> np.ndarray:
+    """LRE as used to judge statistical software: -log10(|a-e|/|e|), or -log10(|a-e|) where e == 0.
+
+    Exact agreement scores MAX_LRE; the result is clipped to [0, MAX_LRE].
+    """
+    e = np.asarray(expected, dtype=np.float64)
+    a = np.asarray(actual, dtype=np.float64)
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        diff = np.abs(a - e)
+        scale = np.where(e == 0, 1.0, np.abs(e))
+        lre = -np.log10(diff / scale)
+    lre = np.where(diff == 0, MAX_LRE, lre)
+    lre = np.where(np.isnan(lre), 0.0, lre)
+    return np.clip(lre, 0.0, MAX_LRE)
+
+
+@dataclass
+class Verdict:
+    """Per-value outcome for two aligned float vectors."""
+
+    passed: np.ndarray  # bool
+    abs_err: np.ndarray  # float; inf where special values disagree
+    rel_err: np.ndarray  # float; relative to expected (absolute where expected is 0)
+
+
+def judge(expected: np.ndarray, actual: np.ndarray, tol: Tolerance) -> Verdict:
+    """Apply `tol` to aligned binary64 vectors."""
+    e = np.asarray(expected, dtype=np.float64)
+    a = np.asarray(actual, dtype=np.float64)
+    with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+        diff = np.abs(a - e)
+        e_abs = np.abs(e)
+        rel = np.where(e == 0, diff, diff / e_abs)
+    e_nan, a_nan = np.isnan(e), np.isnan(a)
+    e_inf, a_inf = np.isinf(e), np.isinf(a)
+    special = e_nan | a_nan | e_inf | a_inf
+    same_special = (e_nan & a_nan) | (e_inf & a_inf & (e == a))
+    if tol.exact:
+        passed = (e == a) | (e_nan & a_nan)
+    else:
+        passed = np.zeros(e.shape, dtype=bool)
+        with np.errstate(invalid="ignore"):
+            if tol.atol is not None:
+                passed |= diff <= tol.atol
+            if tol.rtol is not None:
+                passed |= diff <= tol.rtol * e_abs
+            if tol.ulps is not None:
+                finite = ~special
+                dist = ulp_distance(np.where(finite, e, 0.0), np.where(finite, a, 0.0))
+                passed |= finite & (dist <= np.uint64(tol.ulps))
+            if tol.digits is not None:
+                passed |= ~special & (log_relative_error(e, a) >= tol.digits)
+        passed = np.where(special, same_special, passed)
+    abs_err = np.where(special, np.where(same_special, 0.0, np.inf), diff)
+    rel_err = np.where(special, np.where(same_special, 0.0, np.inf), rel)
+    return Verdict(passed, abs_err, rel_err)

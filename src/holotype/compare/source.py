@@ -1,0 +1,64 @@
+"""One side of a comparison: a file on disk or bytes from the baseline store, named for messages."""
+
+from __future__ import annotations
+
+import hashlib
+import io
+from dataclasses import dataclass
+from pathlib import Path
+from typing import BinaryIO
+
+
+class UnreadableOutput(Exception):
+    """A compared file cannot be parsed in its format; `label` names it."""
+
+    def __init__(self, message: str, label: str) -> None:
+        self.label = label
+        self.message = message
+        super().__init__(f"{label}: {message}")
+
+
+@dataclass(frozen=True)
+class Source:
+    name: str  # the output's relative name: decides the format and matches rules
+    label: str  # how messages name it (a path, or "baseline of results/x.csv")
+    path: Path | None = None
+    data: bytes | None = None
+
+    @classmethod
+    def from_path(cls, path: Path, name: str | None = None) -> Source:
+        return cls(name or Path(path).name, str(path), path=Path(path))
+
+    @classmethod
+    def from_bytes(cls, data: bytes, name: str, label: str) -> Source:
+        return cls(name, label, data=data)
+
+    def open(self) -> BinaryIO:
+        if self.data is not None:
+            return io.BytesIO(self.data)
+        assert self.path is not None
+        try:
+            return open(self.path, "rb")
+        except OSError as exc:
+            raise UnreadableOutput(f"cannot read: {exc.strerror}", self.label) from None
+
+    def read_bytes(self) -> bytes:
+        if self.data is not None:
+            return self.data
+        with self.open() as fh:
+            return fh.read()
+
+    def head(self, n: int) -> bytes:
+        if self.data is not None:
+            return self.data[:n]
+        with self.open() as fh:
+            return fh.read(n)
+
+    def sha256(self) -> str:
+        if self.data is not None:
+            return hashlib.sha256(self.data).hexdigest()
+        h = hashlib.sha256()
+        with self.open() as fh:
+            for block in iter(lambda: fh.read(1 << 20), b""):
+                h.update(block)
+        return h.hexdigest()
