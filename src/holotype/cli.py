@@ -239,6 +239,60 @@ def check(
 
 
 @app.command()
+def rerun(
+    names: Annotated[Optional[list[str]], typer.Argument(help="Analyses to run (default: all).",
+                                                        show_default=False)] = None,
+    twice: Annotated[bool, typer.Option("--twice", help="Run each twice and flag outputs that differ.")] = False,
+    dry_run: Annotated[bool, typer.Option("--dry-run", help="Print what would run, with which environment.")] = False,
+    python: PythonOpt = None,
+    project: ProjectOpt = Path("."),
+    fmt: FormatOpt = Format.text,
+    output: OutputOpt = None,
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """Run the analyses with their seeds and compare every output with its baseline."""
+    session = Session(project, fmt, output, quiet, no_color)
+
+    def body() -> None:
+        from holotype.commands.rerun import rerun_project
+        from holotype.render.progress import AnalysisPanel
+
+        _print_warnings(session)
+        panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
+        try:
+            report = rerun_project(project, names, twice=twice, python=python, dry_run=dry_run, progress=panel)
+        finally:
+            if panel is not None:
+                panel.close()
+        session.emit(report)
+
+    guarded(body)
+
+
+@app.command()
+def accept(
+    names: Annotated[Optional[list[str]], typer.Argument(help="Analyses to accept (default: all).",
+                                                        show_default=False)] = None,
+    reason: Annotated[Optional[str], typer.Option("--reason", help="Why the new results replace the old.")] = None,
+    project: ProjectOpt = Path("."),
+    fmt: FormatOpt = Format.text,
+    output: OutputOpt = None,
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """Take the current outputs as the new baselines, and log why."""
+    session = Session(project, fmt, output, quiet, no_color)
+
+    def body() -> None:
+        from holotype.commands.accept import accept_outputs
+
+        session.emit(accept_outputs(project, names, reason or ""))
+
+    guarded(body)
+
+
+@app.command()
 def compare(
     expected: Annotated[Path, typer.Argument(help="The recorded file or folder.", show_default=False)],
     actual: Annotated[Path, typer.Argument(help="The new file or folder.", show_default=False)],

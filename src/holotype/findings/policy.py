@@ -44,6 +44,8 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "analysis.missing": "fail",
     "analysis.changed": "warn",
     "analysis.nondeterministic": "fail",
+    "analysis.plan": "info",
+    "analysis.ran": "info",
     "output.mismatch": "fail",
     "output.match": "info",
     "output.missing": "fail",

@@ -1,0 +1,117 @@
+"""Shared test helpers: run the CLI in-process, make projects, build tiny wheels and virtual environments offline."""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import os
+import subprocess
+import sys
+import textwrap
+import zipfile
+from dataclasses import dataclass
+from pathlib import Path
+
+import pytest
+from typer.testing import CliRunner
+
+from holotype.cli import app
+
+FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
+
+
+@pytest.fixture(autouse=True)
+def _private_cache(tmp_path_factory: pytest.TempPathFactory, monkeypatch: pytest.MonkeyPatch) -> None:
+    # every test gets its own digest cache, so tests never see each other's entries
+    monkeypatch.setenv("HOLOTYPE_CACHE_DIR", str(tmp_path_factory.mktemp("cache")))
+    monkeypatch.delenv("NO_COLOR", raising=False)
+    monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
+
+
+@dataclass
+class CliResult:
+    code: int
+    out: str
+    err: str
+
+
+def run_cli(*args: str | os.PathLike[str]) -> CliResult:
+    """Run holotype in-process, the way a user types it."""
+    result = CliRunner().invoke(app, [str(a) for a in args], catch_exceptions=False)
+    return CliResult(result.exit_code, result.stdout, result.stderr)
+
+
+@pytest.fixture
+def cli() -> object:
+    return run_cli
+
+
+def write(path: Path, text: str) -> Path:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(textwrap.dedent(text), encoding="utf-8")
+    return path
+
+
+# ----------------------------------------------------------------------------- tiny wheels, offline
+
+
+def _record_line(name: str, data: bytes) -> str:
+    digest = base64.urlsafe_b64encode(hashlib.sha256(data).digest()).rstrip(b"=").decode()
+    return f"{name},sha256={digest},{len(data)}"
+
+
+def build_wheel(folder: Path, name: str, version: str, requires: tuple[str, ...] = (),
+                module_text: str | None = None) -> Path:
+    """A minimal pure-Python wheel (PEP 427) providing module `name`."""
+    dist = name.replace("-", "_")
+    info = f"{dist}-{version}.dist-info"
+    files: dict[str, bytes] = {
+        f"{dist}/__init__.py": (module_text or f"VERSION = {version!r}\n").encode(),
+        f"{info}/METADATA": (f"Metadata-Version: 2.1\nName: {name}\nVersion: {version}\n"
+                             + "".join(f"Requires-Dist: {r}\n" for r in requires)).encode(),
+        f"{info}/WHEEL": b"Wheel-Version: 1.0\nGenerator: holotype-tests\nRoot-Is-Purelib: true\nTag: py3-none-any\n",
+        f"{info}/top_level.txt": f"{dist}\n".encode(),
+    }
+    record = "\n".join(_record_line(n, d) for n, d in files.items()) + f"\n{info}/RECORD,,\n"
+    files[f"{info}/RECORD"] = record.encode()
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / f"{dist}-{version}-py3-none-any.whl"
+    with zipfile.ZipFile(path, "w") as zf:
+        for n, d in files.items():
+            zf.writestr(n, d)
+    return path
+
+
+@dataclass
+class Venv:
+    root: Path
+    wheels: Path
+
+    @property
+    def python(self) -> Path:
+        return self.root / "bin" / "python"
+
+    def pip(self, *args: str) -> None:
+        subprocess.run([str(self.python), "-m", "pip", "--disable-pip-version-check", "-q", *args],
+                       check=True, capture_output=True)
+
+    def install(self, *specs: str) -> None:
+        self.pip("install", "--no-index", "--find-links", str(self.wheels), *specs)
+
+
+def make_venv(root: Path, wheels: Path) -> Venv:
+    subprocess.run([sys.executable, "-m", "venv", str(root)], check=True, capture_output=True)
+    return Venv(root, wheels)
+
+
+@pytest.fixture(scope="session")
+def wheelhouse(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    """alpha (imported by the test project) requires beta; gamma is unrelated tooling."""
+    folder = tmp_path_factory.mktemp("wheels")
+    build_wheel(folder, "alpha", "1.0", ("beta>=1.0",))
+    build_wheel(folder, "alpha", "1.1", ("beta>=1.0",))
+    build_wheel(folder, "beta", "1.0")
+    build_wheel(folder, "beta", "2.0")
+    build_wheel(folder, "gamma", "1.0")
+    build_wheel(folder, "gamma", "2.0")
+    return folder
