@@ -322,6 +322,29 @@ def compare(
     guarded(body)
 
 
+@app.command()
+def demo(
+    folder: Annotated[Path, typer.Argument(help="Where to write the demo project (new or empty).")] = Path(
+        "holotype-demo"),
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """The whole cycle on a bundled, invented lake survey."""
+    session = Session(Path("."), quiet=quiet, no_color=no_color)
+
+    def body() -> None:
+        from holotype.demo.tour import run_demo
+
+        console = session.console
+        if quiet:
+            from rich.console import Console
+
+            console = Console(file=open(os.devnull, "w"))
+        run_demo(folder, console)
+
+    guarded(body)
+
+
 def main() -> None:
     """Console-script entry point."""
     app()

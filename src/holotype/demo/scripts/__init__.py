@@ -1,0 +1,1 @@
+"""The demo project's analysis scripts (copied into the demo folder as analysis/*.py)."""
