@@ -323,6 +323,113 @@ def compare(
 
 
 @app.command()
+def diff(
+    a: Annotated[Optional[Path], typer.Argument(help="The earlier lockfile.", show_default=False)] = None,
+    b: Annotated[Optional[Path], typer.Argument(help="The later lockfile.", show_default=False)] = None,
+    rev: Annotated[Optional[str], typer.Option("--rev", help="Compare the lock committed at this git revision "
+                                                              "with the working copy's.")] = None,
+    project: ProjectOpt = Path("."),
+    fmt: FormatOpt = Format.text,
+    output: OutputOpt = None,
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """What differs between two lockfiles."""
+    session = Session(project, fmt, output, quiet, no_color)
+
+    def body() -> None:
+        from holotype.commands.diff import diff_files, diff_revision
+        from holotype.errors import HolotypeError
+
+        if rev is not None:
+            if a is not None or b is not None:
+                raise HolotypeError("give either two lockfiles or --rev REV, not both")
+            session.emit(diff_revision(project, rev))
+        if a is None or b is None:
+            raise HolotypeError("diff needs two lockfiles (A.lock B.lock) or --rev REV")
+        session.emit(diff_files(project / a, project / b, project))
+
+    guarded(body)
+
+
+@app.command()
+def rebuild(
+    folder: Annotated[Path, typer.Argument(help="Where to create the environment (new or empty).",
+                                           show_default=False)],
+    python: Annotated[Optional[str], typer.Option("--python", help="Interpreter to build it with.")] = None,
+    find_links: Annotated[Optional[list[str]], typer.Option("--find-links", help="Passed to the installer.")] = None,
+    index_url: Annotated[Optional[str], typer.Option("--index-url", help="Passed to the installer.")] = None,
+    no_index: Annotated[bool, typer.Option("--no-index", help="Passed to the installer.")] = False,
+    project: ProjectOpt = Path("."),
+    fmt: FormatOpt = Format.text,
+    output: OutputOpt = None,
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
+    session = Session(project, fmt, output, quiet, no_color)
+
+    def body() -> None:
+        from holotype.commands.rebuild import InstallerOptions, rebuild_environment
+
+        options = InstallerOptions(list(find_links or []), index_url, no_index)
+        session.say(f"building {folder} from holotype.lock …")
+        session.emit(rebuild_environment(project, folder, python=python, installer=options))
+
+    guarded(body)
+
+
+@app.command()
+def export(
+    fmt: Annotated[ExportFormat, typer.Option("--format", help="requirements or pylock.")] = ExportFormat.requirements,
+    output: OutputOpt = None,
+    find_links: Annotated[Optional[list[Path]], typer.Option(
+        "--find-links", help="Folders with the locked wheels (pylock needs their hashes).")] = None,
+    project: ProjectOpt = Path("."),
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """Write the locked packages as requirements.txt pins or a PEP 751 pylock.toml."""
+    session = Session(project, quiet=quiet, no_color=no_color)
+
+    def body() -> None:
+        from holotype.commands.export import export_lock
+
+        _write_or_print(session, export_lock(project, fmt.value, list(find_links or [])), output)
+
+    guarded(body)
+
+
+@app.command()
+def report(
+    fmt: Annotated[ReportFormat, typer.Option("--format", help="markdown or html.")] = ReportFormat.markdown,
+    output: OutputOpt = None,
+    project: ProjectOpt = Path("."),
+    quiet: QuietOpt = False,
+    no_color: NoColorOpt = False,
+) -> None:
+    """A methods and provenance appendix for a thesis or paper."""
+    session = Session(project, quiet=quiet, no_color=no_color)
+
+    def body() -> None:
+        from holotype.commands.report import build_report
+
+        _write_or_print(session, build_report(project, fmt.value), output)
+
+    guarded(body)
+
+
+def _write_or_print(session: Session, text: str, output: Path | None) -> None:
+    if output is None:
+        sys.stdout.write(text)
+        return
+    from holotype.atomic import write_atomic
+
+    write_atomic(output, text)
+    session.say(f"wrote {output}")
+
+
+@app.command()
 def demo(
     folder: Annotated[Path, typer.Argument(help="Where to write the demo project (new or empty).")] = Path(
         "holotype-demo"),

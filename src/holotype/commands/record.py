@@ -25,7 +25,8 @@ from holotype.project_lock import project_lock
 from holotype.records import AnalysisRecord, Lock, OutputRecord
 from holotype.seeds import derive_seed
 
-STORE_GITIGNORE = "# holotype: the baselines are committed; logs and the busy marker are not\nbusy\nlogs/\n"
+STORE_GITIGNORE = ("# holotype: the baselines are committed; logs, the busy marker and the last rerun are not\n"
+                   "busy\nlogs/\nlast-rerun.json\n")
 
 
 def timestamp() -> str:

@@ -2,10 +2,12 @@
 
 from __future__ import annotations
 
+import json
 import shlex
 from pathlib import Path
 
-from holotype.baselines import BaselineError, BaselineStore
+from holotype.atomic import write_atomic
+from holotype.baselines import STORE_FOLDER, BaselineError, BaselineStore
 from holotype.capture.environment import resolve_python
 from holotype.capture.runs import RunProgress, RunResult, analysis_environment, command_for, run_analysis, run_order
 from holotype.compare.outputs import compare_sources
@@ -163,4 +165,17 @@ def rerun_project(root: Path, names: list[str] | None = None, *, twice: bool = F
                                         f"second run: {second.failure_text()}"))
             else:
                 findings += compare_runs(result, second)
-    return Report("rerun", apply_policy(findings, config.policy))
+    report = Report("rerun", apply_policy(findings, config.policy))
+    save_last_rerun(root, report, [a.name for a in analyses])
+    return report
+
+
+LAST_RERUN = "last-rerun.json"
+
+
+def save_last_rerun(root: Path, report: Report, names: list[str]) -> None:
+    """Keep the latest rerun's findings for `holotype report` (in .holotype/, not committed)."""
+    from holotype.commands.record import timestamp
+
+    doc = {"when": timestamp(), "analyses": names, **report.to_dict()}
+    write_atomic(Path(root) / STORE_FOLDER / LAST_RERUN, json.dumps(doc, indent=1, default=str))

@@ -49,27 +49,28 @@ def _direction(old: str, new: str) -> str:
     return "upgraded" if b > a else "downgraded" if b < a else "changed"
 
 
-def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord]) -> list[Finding]:
+def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord],
+                     then: str = "recorded", now: str = "found", gone: str = "not installed") -> list[Finding]:
     """Drift of every recorded package; its kind depends on whether the project uses it."""
     out: list[Finding] = []
     for name in sorted(old):
         rec = old[name]
         kind = "package.used" if rec.used else "package.unrelated"
         role = "" if rec.used else " (not used by the analysis)"
-        now = new.get(name)
-        if now is None:
-            out.append(Finding("package", name, kind, f"version {rec.version} recorded, not installed{role}",
+        found = new.get(name)
+        if found is None:
+            out.append(Finding("package", name, kind, f"version {rec.version} {then}, {gone}{role}",
                                rec.version, None))
             continue
-        if now.version != rec.version:
+        if found.version != rec.version:
             out.append(Finding("package", name, kind,
-                               f"version {rec.version} recorded, {now.version} found "
-                               f"({_direction(rec.version, now.version)}){role}", rec.version, now.version))
-        if now.origin != rec.origin:
+                               f"version {rec.version} {then}, {found.version} {now} "
+                               f"({_direction(rec.version, found.version)}){role}", rec.version, found.version))
+        if found.origin != rec.origin:
             out.append(Finding("package", name, kind,
-                               f"origin {rec.origin.describe()} recorded, {now.origin.describe()} found{role}",
-                               rec.origin.describe(), now.origin.describe()))
+                               f"origin {rec.origin.describe()} {then}, {found.origin.describe()} {now}{role}",
+                               rec.origin.describe(), found.origin.describe()))
     for name in sorted(set(new) - set(old)):
-        out.append(Finding("package", name, "package.added", f"{name} {new[name].version} installed since the record",
+        out.append(Finding("package", name, "package.added", f"{name} {new[name].version} {now}, not {then}",
                            None, new[name].version))
     return out

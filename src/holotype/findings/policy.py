@@ -53,6 +53,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.shape": "fail",
     "output.layout": "info",
     "output.baseline": "fail",
+    "output.changed": "fail",
     "output.unreadable": "fail",
     # the lockfile itself
     "lockfile.section": "info",

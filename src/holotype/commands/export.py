@@ -1,0 +1,116 @@
+"""`holotype export`: the locked packages as requirements.txt pins or a PEP 751 pylock.toml."""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+from typing import Any
+
+from holotype import __version__
+from holotype.errors import HolotypeError
+from holotype.lockfile import LOCK_NAME, read_lock
+from holotype.records import Lock, PackageRecord
+
+
+def requirement_line(pkg: PackageRecord) -> str:
+    """One pinned requirement (PEP 508 / PEP 440 ===-free exact pin, or a direct reference for non-index origins)."""
+    o = pkg.origin
+    if o.kind == "vcs" and o.url and o.commit:
+        sub = f"#subdirectory={o.subdirectory}" if o.subdirectory else ""
+        return f"{pkg.name} @ {o.vcs}+{o.url}@{o.commit}{sub}"
+    if o.kind == "archive" and o.url:
+        frag = f"#{o.archive_hash}" if o.archive_hash and "#" not in o.url else ""
+        return f"{pkg.name} @ {o.url}{frag}"
+    if o.kind in ("directory", "editable") and o.url:
+        return f"{pkg.name} @ {o.url}"
+    return f"{pkg.name}=={pkg.version}"
+
+
+def export_requirements(lock: Lock) -> str:
+    lines = [f"# Exact pins exported by holotype {__version__} from {LOCK_NAME} (recorded {lock.recorded}),",
+             f"# Python {lock.interpreter.version} on {lock.platform.system} {lock.platform.machine}."]
+    lines += [requirement_line(lock.packages[name]) for name in sorted(lock.packages)]
+    return "\n".join(lines) + "\n"
+
+
+def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
+    from packaging.utils import canonicalize_name, parse_sdist_filename, parse_wheel_filename
+
+    found = []
+    for folder in folders:
+        for path in sorted(folder.iterdir()) if folder.is_dir() else []:
+            try:
+                if path.suffix == ".whl":
+                    name, version, _, _ = parse_wheel_filename(path.name)
+                elif path.name.endswith(".tar.gz"):
+                    name, version = parse_sdist_filename(path.name)
+                else:
+                    continue
+            except ValueError:
+                continue
+            if name == canonicalize_name(pkg.name) and str(version) == pkg.version:
+                found.append(path)
+    return found
+
+
+def _sha256(path: Path) -> str:
+    with open(path, "rb") as fh:
+        return hashlib.file_digest(fh, "sha256").hexdigest()
+
+
+def pylock_dict(lock: Lock, find_links: list[Path]) -> dict[str, Any]:
+    """A PEP 751 document. Index packages need their files' hashes, found in `find_links` folders."""
+    packages: list[dict[str, Any]] = []
+    unhashed: list[str] = []
+    for name in sorted(lock.packages):
+        pkg = lock.packages[name]
+        entry: dict[str, Any] = {"name": name, "version": pkg.version}
+        o = pkg.origin
+        if o.kind == "vcs" and o.url and o.commit:
+            entry["vcs"] = {k: v for k, v in {"type": o.vcs, "url": o.url, "commit-id": o.commit,
+                                              "requested-revision": o.requested_revision,
+                                              "subdirectory": o.subdirectory}.items() if v}
+        elif o.kind in ("directory", "editable") and o.url:
+            entry["directory"] = {"path": o.url.removeprefix("file://"), "editable": o.kind == "editable"}
+        elif o.kind == "archive" and o.url and o.archive_hash and "=" in o.archive_hash:
+            algo, digest = o.archive_hash.split("=", 1)
+            entry["archive"] = {"url": o.url, "hashes": {algo: digest}}
+        else:
+            files = _files_for(pkg, find_links)
+            wheels = [p for p in files if p.suffix == ".whl"]
+            sdists = [p for p in files if p.suffix != ".whl"]
+            if not files:
+                unhashed.append(f"{name} {pkg.version}")
+                continue
+            if wheels:
+                entry["wheels"] = [{"name": p.name, "path": str(p), "hashes": {"sha256": _sha256(p)}} for p in wheels]
+            if sdists:
+                entry["sdist"] = {"name": sdists[0].name, "path": str(sdists[0]),
+                                  "hashes": {"sha256": _sha256(sdists[0])}}
+        packages.append(entry)
+    if unhashed:
+        shown = ", ".join(unhashed[:3]) + (f" and {len(unhashed) - 3} more" if len(unhashed) > 3 else "")
+        raise HolotypeError(f"pylock.toml needs a file hash for each index package, and none was found for {shown}; "
+                            "pass --find-links DIR holding their wheels (for example from 'pip download --no-deps "
+                            "-d DIR -r requirements.txt')")
+    return {"lock-version": "1.0", "created-by": "holotype",
+            "requires-python": f"=={lock.interpreter.version}", "packages": packages}
+
+
+def export_pylock(lock: Lock, find_links: list[Path]) -> str:
+    import tomli_w
+    from packaging.pylock import Pylock, PylockValidationError
+
+    doc = pylock_dict(lock, find_links)
+    try:
+        Pylock.from_dict(doc)  # PEP 751's reference reader must accept what we write
+    except PylockValidationError as exc:
+        raise HolotypeError(f"cannot express this lock as pylock.toml: {exc}") from None
+    return tomli_w.dumps(doc)
+
+
+def export_lock(root: Path, fmt: str, find_links: list[Path] | None = None) -> str:
+    lock = read_lock(Path(root) / LOCK_NAME)
+    if fmt == "requirements":
+        return export_requirements(lock)
+    return export_pylock(lock, find_links or [])

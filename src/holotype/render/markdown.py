@@ -1,0 +1,30 @@
+"""Findings as a Markdown table for a CI job summary or a pull-request comment."""
+
+from __future__ import annotations
+
+from holotype.findings import Report
+from holotype.render.terminal import SEVERITY_ORDER
+
+ICON = {"fail": "❌ fail", "warn": "⚠️ warn", "info": "ℹ️ info"}
+
+
+def cell(text: object) -> str:
+    """One table cell: pipes escaped, line breaks as <br>, so user text cannot break the table."""
+    value = "" if text is None else str(text)
+    return value.replace("\\", "\\\\").replace("|", "\\|").replace("\r", "").replace("\n", "<br>")
+
+
+def render_markdown(report: Report) -> str:
+    counts = report.counts()
+    verdict = "✅ no failures" if report.ok else f"❌ {counts['fail']} failure(s)"
+    lines = [f"### holotype {report.command}: {verdict}", "",
+             f"{counts['fail']} failed · {counts['warn']} warnings · {counts['info']} notes", ""]
+    rows = sorted(report.findings, key=lambda f: (SEVERITY_ORDER[f.severity], f.area, f.subject))
+    if rows:
+        lines += ["| | area | subject | finding |", "|---|---|---|---|"]
+        for f in rows:
+            lines.append(f"| {ICON[f.severity]} | {cell(f.area)} | `{cell(f.subject).replace('`', 'ʼ')}` | "
+                         f"{cell(f.message)} |")
+    for note in report.notes:
+        lines += ["", f"_{cell(note)}_"]
+    return "\n".join(lines) + "\n"

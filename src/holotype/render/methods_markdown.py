@@ -1,0 +1,44 @@
+"""The provenance appendix as Markdown."""
+
+from __future__ import annotations
+
+from holotype import __version__
+from holotype.commands.report import CAUTION, Provenance
+from holotype.render.markdown import cell
+
+
+def render_methods_markdown(prov: Provenance) -> str:
+    lock = prov.lock
+    it, pf = lock.interpreter, lock.platform
+    used = [lock.packages[n] for n in sorted(lock.packages) if lock.packages[n].used]
+    unrelated = len(lock.packages) - len(used)
+    out = [
+        "# Computational methods and provenance", "",
+        f"Recorded {lock.recorded} with holotype {lock.holotype or __version__}.", "",
+        "## Environment", "",
+        f"- Interpreter: {it.implementation} {it.version} ({cell(it.compiler)}; ABI {cell(it.abi or 'n/a')})",
+        f"- Platform: {pf.system} {pf.release} on {pf.machine}; C library {pf.libc_text}",
+        f"- Packages: {len(used)} used by the analysis (listed below); {unrelated} other installed packages "
+        "recorded in holotype.lock", "",
+        "| package | version | origin |", "|---|---|---|",
+    ]
+    out += [f"| {cell(p.name)} | {cell(p.version)} | {cell(p.origin.describe())} |" for p in used]
+    out += ["", "## Data", "", "| file | bytes | SHA-256 |", "|---|---:|---|"]
+    for path, rec in sorted(lock.data.items()):
+        digest = rec.sha256 if rec.kind == "file" else f"symbolic link to {rec.target}"
+        out.append(f"| `{cell(path)}` | {rec.size:,} | `{cell(digest)}` |")
+    out += ["", "## Seeds", "", f"Project seed: {lock.project_seed}. Each analysis seed is the first four bytes "
+            "(big-endian) of SHA-256 of \"<project seed>/<analysis name>\".", ""]
+    out += [f"- {cell(name)}: {rec.seed}" for name, rec in sorted(lock.analyses.items())]
+    out += ["", "## Analyses and results", ""]
+    if prov.last_rerun_when:
+        verdict = "all outputs reproduced within tolerance" if prov.last_rerun_ok else "NOT reproduced"
+        out.append(f"Latest rerun: {prov.last_rerun_when}: {verdict}.")
+    else:
+        out.append("No rerun has been recorded on this machine yet (run `holotype rerun`).")
+    out += ["", "| analysis | output | SHA-256 | tolerance | latest rerun |", "|---|---|---|---|---|"]
+    for line in prov.outputs:
+        out.append(f"| {cell(line.analysis)} | `{cell(line.path)}` | `{line.sha256[:16]}…` | {cell(line.tolerance)} | "
+                   f"{cell(line.result)} |")
+    out += ["", "## Caution", "", CAUTION, ""]
+    return "\n".join(out)
