@@ -37,6 +37,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "code.missing": "warn",
     "code.added": "warn",
     "code.unreadable": "warn",
+    "code.unstable": "warn",
     "code.unparsable": "info",
     # seeds, analyses and outputs
     "seed.changed": "fail",
@@ -55,8 +56,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.baseline": "fail",
     "output.changed": "fail",
     "output.unreadable": "fail",
-    # the lockfile itself
-    "lockfile.section": "info",
+    # notes about the lockfile and what a command did
     "lockfile.note": "info",
 }
 
