@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pytest
-from typer.testing import CliRunner
+from click.testing import CliRunner
 
 from holotype.cli import app
 
@@ -37,7 +37,7 @@ class CliResult:
 
 def run_cli(*args: str | os.PathLike[str]) -> CliResult:
     """Run holotype in-process, the way a user types it."""
-    result = CliRunner().invoke(app, [str(a) for a in args], catch_exceptions=False)
+    result = CliRunner().invoke(app, [str(a) for a in args], catch_exceptions=False, prog_name="holotype")
     return CliResult(result.exit_code, result.stdout, result.stderr)
 
 

@@ -60,3 +60,28 @@ def test_probe_json_under_the_oldest_python() -> None:
     env = environment_from_probe(doc)
     assert env.interpreter.version == it["version"]
     assert all(name == name.lower() for name in env.packages)
+
+
+def test_fast_metadata_reader_agrees_with_importlib_metadata() -> None:
+    # the probe reads METADATA headers itself for speed; the standard library's reader is the reference
+    from importlib import metadata
+
+    from holotype.capture import probe
+
+    ours = {d["name"]: d for d in probe.describe()["distributions"]}
+    checked = 0
+    for dist in metadata.distributions():
+        name = dist.metadata["Name"]
+        if name in ours:
+            assert ours[name]["version"] == dist.version
+            assert ours[name]["requires"] == list(dist.requires or [])
+            checked += 1
+    assert checked >= 10
+
+
+def test_header_parser_handles_folded_lines_and_the_body() -> None:
+    from holotype.capture.probe import _headers
+
+    text = ("Metadata-Version: 2.1\nName: lake-tools\nVersion: 1.2\nLicense: line one\n         \n  line two\n"
+            "Requires-Dist: numpy>=1.24\nRequires-Dist: scipy;\n extra == 'stats'\n\nRequires-Dist: not-a-header\n")
+    assert _headers(text) == ("lake-tools", "1.2", ["numpy>=1.24", "scipy; extra == 'stats'"])

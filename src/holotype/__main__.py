@@ -1,3 +1,3 @@
-from holotype.cli import main
+from holotype.entry import main
 
 main()

@@ -1,18 +1,18 @@
 """The command line: parse options, call one function, render, choose the exit code. Nothing else.
 
-Heavy modules (NumPy, packaging, the commands) are imported inside the commands so that
-`holotype --version` and `--help` stay fast.
+Built on click. Heavy modules (NumPy, packaging, rich tables, the commands) are imported inside
+the commands so that `holotype --help` stays fast.
 """
 
 from __future__ import annotations
 
 import os
 import sys
-from enum import Enum
+from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any, Callable, NoReturn, Optional
+from typing import TYPE_CHECKING, Any, NoReturn, TypeVar
 
-import typer
+import click
 
 from holotype import __version__
 
@@ -21,59 +21,15 @@ if TYPE_CHECKING:
 
     from holotype.findings import Report
 
-app = typer.Typer(
-    name="holotype",
-    help="Record exactly what a data analysis ran on, and prove later that it still gives the same numbers.",
-    no_args_is_help=True,
-    add_completion=False,
-    pretty_exceptions_enable=False,
-    rich_markup_mode=None,
-)
-
-
-class Format(str, Enum):
-    text = "text"
-    json = "json"
-    junit = "junit"
-    markdown = "markdown"
-
-
-class ExportFormat(str, Enum):
-    requirements = "requirements"
-    pylock = "pylock"
-
-
-class ReportFormat(str, Enum):
-    markdown = "markdown"
-    html = "html"
-
-
-ProjectOpt = Annotated[Path, typer.Option("--project", "-C", help="The project folder.", show_default=False)]
-FormatOpt = Annotated[Format, typer.Option("--format", help="How to report findings.")]
-OutputOpt = Annotated[Optional[Path], typer.Option("--output", help="Also write the report to FILE.")]
-QuietOpt = Annotated[bool, typer.Option("--quiet", help="No progress, no table; the exit code tells.")]
-NoColorOpt = Annotated[bool, typer.Option("--no-color", help="No colour (also: NO_COLOR=1).")]
-PythonOpt = Annotated[Optional[str], typer.Option("--python", help="The analysis interpreter to inspect.")]
-
-
-def _version(value: bool) -> None:
-    if value:
-        print(f"holotype {__version__}")
-        raise typer.Exit(0)
-
-
-@app.callback()
-def _root(
-    version: Annotated[bool, typer.Option("--version", callback=_version, is_eager=True,
-                                          help="Print the version and exit.")] = False,
-) -> None:
-    """holotype keeps the reference specimen of an analysis and checks later runs against it."""
+F = TypeVar("F", bound=Callable[..., Any])
+FINDING_FORMATS = ("text", "json", "junit", "markdown")
+CONTEXT = {"help_option_names": ["--help", "-h"], "max_content_width": 100}
 
 
 class Session:
     """The options every command shares, and the consoles they imply."""
 
-    def __init__(self, project: Path, fmt: Format = Format.text, output: Path | None = None, quiet: bool = False,
+    def __init__(self, project: Path, fmt: str = "text", output: Path | None = None, quiet: bool = False,
                  no_color: bool = False) -> None:
         self.project = project
         self.fmt = fmt
@@ -88,7 +44,7 @@ class Session:
         if self._console is None:
             from rich.console import Console
 
-            self._console = Console(no_color=self.no_color, highlight=False, soft_wrap=False)
+            self._console = Console(file=sys.stdout, no_color=self.no_color, highlight=False)
         return self._console
 
     @property
@@ -96,52 +52,63 @@ class Session:
         if self._err is None:
             from rich.console import Console
 
-            self._err = Console(stderr=True, no_color=self.no_color, highlight=False)
+            self._err = Console(file=sys.stderr, no_color=self.no_color, highlight=False)
         return self._err
 
     @property
     def interactive(self) -> bool:
-        return not self.quiet and self.fmt == Format.text and self.console.is_terminal
+        return not self.quiet and self.fmt == "text" and self.err.is_terminal
 
     def say(self, message: str) -> None:
         if not self.quiet:
             self.err.print(message, markup=False)
+
+    def warn_config(self) -> None:
+        """Print the config's warnings (unknown keys, precedence) once, on stderr."""
+        from holotype.config import load_config
+        from holotype.errors import HolotypeError
+
+        try:
+            config = load_config(self.project, required=False)
+        except HolotypeError:
+            return  # the command itself reports it
+        for warning in config.warnings:
+            self.say(f"warning: {warning}")
 
     def emit(self, report: Report) -> NoReturn:
         """Render the report (and --output), then exit 0 or 1."""
         from holotype.render import formats
 
         if self.output is not None:
-            fmt = self.fmt if self.fmt != Format.text else _format_from_suffix(self.output)
-            formats.write_report(self.output, report, fmt.value)
-            if fmt != Format.text and not self.quiet:
+            fmt = self.fmt if self.fmt != "text" else _format_from_suffix(self.output)
+            formats.write_report(self.output, report, fmt)
+            if not self.quiet:
                 formats.print_text(self.console, report)
-        if self.output is None or self.fmt == Format.text:
-            if self.fmt == Format.text:
-                if not self.quiet:
-                    formats.print_text(self.console, report)
-            else:
-                sys.stdout.write(formats.render(report, self.fmt.value))
-                sys.stdout.flush()
-        raise typer.Exit(0 if report.ok else 1)
+        elif self.fmt == "text":
+            if not self.quiet:
+                formats.print_text(self.console, report)
+        else:
+            sys.stdout.write(formats.render(report, self.fmt))
+            sys.stdout.flush()
+        sys.exit(0 if report.ok else 1)
 
 
-def _format_from_suffix(path: Path) -> Format:
-    return {".json": Format.json, ".xml": Format.junit, ".md": Format.markdown}.get(path.suffix.lower(), Format.text)
+def _format_from_suffix(path: Path) -> str:
+    return {".json": "json", ".xml": "junit", ".md": "markdown"}.get(path.suffix.lower(), "text")
 
 
-def guarded(action: Callable[[], Any], session: Session | None = None) -> Any:
+def run_guarded(action: Callable[[], Any]) -> Any:
     """Run a command body; HolotypeError (and anything unexpected) becomes one line on stderr and exit 2."""
     from holotype.errors import HolotypeError
 
     try:
         return action()
-    except typer.Exit:
-        raise
     except HolotypeError as exc:
         _fail(str(exc))
     except KeyboardInterrupt:
         _fail("interrupted")
+    except (SystemExit, click.exceptions.Exit, click.ClickException):
+        raise
     except Exception as exc:  # never a traceback for users; HOLOTYPE_DEBUG=1 shows it
         if os.environ.get("HOLOTYPE_DEBUG"):
             raise
@@ -150,25 +117,60 @@ def guarded(action: Callable[[], Any], session: Session | None = None) -> Any:
 
 def _fail(message: str) -> NoReturn:
     sys.stderr.write(f"holotype: {message}\n")
-    raise typer.Exit(2)
+    sys.stderr.flush()
+    sys.exit(2)
 
 
-def _print_warnings(session: Session) -> None:
-    from holotype.config import find_config_source, load_config
+# ----------------------------------------------------------------------------- shared options
 
-    try:
-        config = load_config(session.project, required=False)
-    except Exception:
-        return
-    for warning in config.warnings:
-        session.say(f"warning: {warning}")
+
+def _project(f: F) -> F:
+    return click.option("--project", "-C", "project", type=click.Path(path_type=Path), default=Path("."),
+                        show_default=False, help="The project folder (default: the current folder).")(f)
+
+
+def _quiet_color(f: F) -> F:
+    f = click.option("--no-color", is_flag=True, help="No colour (also: NO_COLOR=1).")(f)
+    return click.option("--quiet", is_flag=True, help="No progress, no table; the exit code tells.")(f)
+
+
+def _findings_output(f: F) -> F:
+    f = click.option("--output", type=click.Path(path_type=Path), default=None,
+                     help="Also write the report to FILE (atomically).")(f)
+    return click.option("--format", "fmt", type=click.Choice(FINDING_FORMATS), default="text", show_default=True,
+                        help="How to report findings.")(f)
+
+
+def _python(f: F) -> F:
+    return click.option("--python", default=None, help="The analysis interpreter to inspect.")(f)
+
+
+def common(*, findings: bool = True, python: bool = False) -> Callable[[F], F]:
+    """The options interface.md gives every command (and --python where it applies)."""
+
+    def decorate(f: F) -> F:
+        f = _quiet_color(f)
+        if findings:
+            f = _findings_output(f)
+        if python:
+            f = _python(f)
+        return _project(f)
+
+    return decorate
+
+
+@click.group(context_settings=CONTEXT)
+@click.version_option(__version__, "--version", prog_name="holotype", message="%(prog)s %(version)s")
+def app() -> None:
+    """Record exactly what a data analysis ran on, and prove later that it still gives the same numbers."""
 
 
 # ----------------------------------------------------------------------------- commands
 
 
 @app.command()
-def start(project: ProjectOpt = Path("."), quiet: QuietOpt = False, no_color: NoColorOpt = False) -> None:
+@common(findings=False)
+def start(project: Path, quiet: bool, no_color: bool) -> None:
     """Look at the folder and write a starter holotype.toml (never overwrites)."""
     session = Session(project, quiet=quiet, no_color=no_color)
 
@@ -178,19 +180,14 @@ def start(project: ProjectOpt = Path("."), quiet: QuietOpt = False, no_color: No
         path = start_project(project)
         session.say(f"wrote {path}; edit it, then run 'holotype record'")
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def record(
-    project: ProjectOpt = Path("."),
-    no_run: Annotated[bool, typer.Option("--no-run", help="Record the environment, data and code only.")] = False,
-    python: PythonOpt = None,
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
+@click.option("--no-run", is_flag=True, help="Record the environment, data and code only.")
+@common(python=True)
+def record(project: Path, no_run: bool, python: str | None, fmt: str, output: Path | None, quiet: bool,
+           no_color: bool) -> None:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
     session = Session(project, fmt, output, quiet, no_color)
 
@@ -198,7 +195,7 @@ def record(
         from holotype.commands.record import record_project
         from holotype.render.progress import AnalysisPanel, HashBar
 
-        _print_warnings(session)
+        session.warn_config()
         panel = AnalysisPanel(session.err) if session.interactive else None
         try:
             outcome = record_project(project, run=not no_run, python=python,
@@ -209,20 +206,15 @@ def record(
                 panel.close()
         session.emit(outcome.report)
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def check(
-    project: ProjectOpt = Path("."),
-    full: Annotated[bool, typer.Option("--full", help="Hash every file again, ignoring the digest cache.")] = False,
-    strict: Annotated[bool, typer.Option("--strict", help="Treat warnings as failures.")] = False,
-    python: PythonOpt = None,
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
+@click.option("--full", is_flag=True, help="Hash every file again, ignoring the digest cache.")
+@click.option("--strict", is_flag=True, help="Treat warnings as failures.")
+@common(python=True)
+def check(project: Path, full: bool, strict: bool, python: str | None, fmt: str, output: Path | None, quiet: bool,
+          no_color: bool) -> None:
     """Compare the project as it is now with holotype.lock, running nothing."""
     session = Session(project, fmt, output, quiet, no_color)
 
@@ -230,111 +222,92 @@ def check(
         from holotype.commands.check import check_project
         from holotype.render.progress import HashBar
 
-        _print_warnings(session)
+        session.warn_config()
         report = check_project(project, strict=strict, full=full, python=python,
                                progress=HashBar(session.err) if session.interactive else None)
         session.emit(report)
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def rerun(
-    names: Annotated[Optional[list[str]], typer.Argument(help="Analyses to run (default: all).",
-                                                        show_default=False)] = None,
-    twice: Annotated[bool, typer.Option("--twice", help="Run each twice and flag outputs that differ.")] = False,
-    dry_run: Annotated[bool, typer.Option("--dry-run", help="Print what would run, with which environment.")] = False,
-    python: PythonOpt = None,
-    project: ProjectOpt = Path("."),
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """Run the analyses with their seeds and compare every output with its baseline."""
+@click.argument("names", nargs=-1)
+@click.option("--twice", is_flag=True, help="Run each analysis twice and flag outputs that differ.")
+@click.option("--dry-run", is_flag=True, help="Print what would run, with which environment, and run nothing.")
+@common(python=True)
+def rerun(project: Path, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None, fmt: str,
+          output: Path | None, quiet: bool, no_color: bool) -> None:
+    """Run the analyses (all, or NAMES) with their seeds and compare every output with its baseline."""
     session = Session(project, fmt, output, quiet, no_color)
 
     def body() -> None:
         from holotype.commands.rerun import rerun_project
         from holotype.render.progress import AnalysisPanel
 
-        _print_warnings(session)
+        session.warn_config()
         panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
         try:
-            report = rerun_project(project, names, twice=twice, python=python, dry_run=dry_run, progress=panel)
+            report = rerun_project(project, list(names), twice=twice, python=python, dry_run=dry_run,
+                                   progress=panel)
         finally:
             if panel is not None:
                 panel.close()
         session.emit(report)
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def accept(
-    names: Annotated[Optional[list[str]], typer.Argument(help="Analyses to accept (default: all).",
-                                                        show_default=False)] = None,
-    reason: Annotated[Optional[str], typer.Option("--reason", help="Why the new results replace the old.")] = None,
-    project: ProjectOpt = Path("."),
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """Take the current outputs as the new baselines, and log why."""
+@click.argument("names", nargs=-1)
+@click.option("--reason", default=None, help="Why the new results replace the recorded ones (required).")
+@common()
+def accept(project: Path, names: tuple[str, ...], reason: str | None, fmt: str, output: Path | None, quiet: bool,
+           no_color: bool) -> None:
+    """Take the current outputs of the analyses (all, or NAMES) as the new baselines, and log why."""
     session = Session(project, fmt, output, quiet, no_color)
 
     def body() -> None:
         from holotype.commands.accept import accept_outputs
 
-        session.emit(accept_outputs(project, names, reason or ""))
+        session.emit(accept_outputs(project, list(names), reason or ""))
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def compare(
-    expected: Annotated[Path, typer.Argument(help="The recorded file or folder.", show_default=False)],
-    actual: Annotated[Path, typer.Argument(help="The new file or folder.", show_default=False)],
-    atol: Annotated[Optional[float], typer.Option("--atol", help="Absolute tolerance.")] = None,
-    rtol: Annotated[Optional[float], typer.Option("--rtol", help="Tolerance relative to the expected value.")] = None,
-    ulps: Annotated[Optional[int], typer.Option("--ulps", help="Distance in binary64 steps.")] = None,
-    digits: Annotated[Optional[float], typer.Option("--digits", help="Correct significant digits (LRE).")] = None,
-    key: Annotated[Optional[list[str]], typer.Option("--key", help="Match rows by this column (repeatable).")] = None,
-    sign_free: Annotated[Optional[list[str]], typer.Option("--sign-free",
-                                                            help="Columns that may flip sign as a whole.")] = None,
-    ignore: Annotated[Optional[list[str]], typer.Option("--ignore", help="Skip these columns (globs).")] = None,
-    project: ProjectOpt = Path("."),
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """Compare two result files or two folders directly, within tolerances."""
+@click.argument("expected", type=click.Path(path_type=Path))
+@click.argument("actual", type=click.Path(path_type=Path))
+@click.option("--atol", type=float, default=None, help="Absolute tolerance.")
+@click.option("--rtol", type=float, default=None, help="Tolerance relative to the expected value.")
+@click.option("--ulps", type=int, default=None, help="Distance in IEEE-754 binary64 steps.")
+@click.option("--digits", type=float, default=None, help="Correct significant digits (log relative error).")
+@click.option("--key", multiple=True, help="Match rows by this column (repeatable).")
+@click.option("--sign-free", "sign_free", multiple=True, help="Columns (globs) that may flip sign as a whole.")
+@click.option("--ignore", multiple=True, help="Skip these columns or JSON paths (globs).")
+@common()
+def compare(project: Path, expected: Path, actual: Path, atol: float | None, rtol: float | None, ulps: int | None,
+            digits: float | None, key: tuple[str, ...], sign_free: tuple[str, ...], ignore: tuple[str, ...], fmt: str,
+            output: Path | None, quiet: bool, no_color: bool) -> None:
+    """Compare two result files, or two folders paired by relative path, within tolerances."""
     session = Session(project, fmt, output, quiet, no_color)
 
     def body() -> None:
         from holotype.commands.compare_files import compare_inputs, rulebook_from_flags
 
-        rules = rulebook_from_flags(atol, rtol, ulps, digits, key, sign_free, ignore)
+        rules = rulebook_from_flags(atol, rtol, ulps, digits, list(key), list(sign_free), list(ignore))
         session.emit(compare_inputs(project / expected, project / actual, rules))
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def diff(
-    a: Annotated[Optional[Path], typer.Argument(help="The earlier lockfile.", show_default=False)] = None,
-    b: Annotated[Optional[Path], typer.Argument(help="The later lockfile.", show_default=False)] = None,
-    rev: Annotated[Optional[str], typer.Option("--rev", help="Compare the lock committed at this git revision "
-                                                              "with the working copy's.")] = None,
-    project: ProjectOpt = Path("."),
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """What differs between two lockfiles."""
+@click.argument("a", required=False, type=click.Path(path_type=Path))
+@click.argument("b", required=False, type=click.Path(path_type=Path))
+@click.option("--rev", default=None, help="Compare the lock committed at this git revision with the working copy's.")
+@common()
+def diff(project: Path, a: Path | None, b: Path | None, rev: str | None, fmt: str, output: Path | None, quiet: bool,
+         no_color: bool) -> None:
+    """What differs between two lockfiles (A B, or --rev REV against the working copy)."""
     session = Session(project, fmt, output, quiet, no_color)
 
     def body() -> None:
@@ -349,74 +322,66 @@ def diff(
             raise HolotypeError("diff needs two lockfiles (A.lock B.lock) or --rev REV")
         session.emit(diff_files(project / a, project / b, project))
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def rebuild(
-    folder: Annotated[Path, typer.Argument(help="Where to create the environment (new or empty).",
-                                           show_default=False)],
-    python: Annotated[Optional[str], typer.Option("--python", help="Interpreter to build it with.")] = None,
-    find_links: Annotated[Optional[list[str]], typer.Option("--find-links", help="Passed to the installer.")] = None,
-    index_url: Annotated[Optional[str], typer.Option("--index-url", help="Passed to the installer.")] = None,
-    no_index: Annotated[bool, typer.Option("--no-index", help="Passed to the installer.")] = False,
-    project: ProjectOpt = Path("."),
-    fmt: FormatOpt = Format.text,
-    output: OutputOpt = None,
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
+@click.argument("folder", type=click.Path(path_type=Path))
+@click.option("--python", default=None, help="Interpreter to build it with (default: one of the locked version).")
+@click.option("--find-links", multiple=True, help="Passed to the installer (repeatable).")
+@click.option("--index-url", default=None, help="Passed to the installer.")
+@click.option("--no-index", is_flag=True, help="Passed to the installer.")
+@common()
+def rebuild(project: Path, folder: Path, python: str | None, find_links: tuple[str, ...], index_url: str | None,
+            no_index: bool, fmt: str, output: Path | None, quiet: bool, no_color: bool) -> None:
     """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
     session = Session(project, fmt, output, quiet, no_color)
 
     def body() -> None:
         from holotype.commands.rebuild import InstallerOptions, rebuild_environment
 
-        options = InstallerOptions(list(find_links or []), index_url, no_index)
         session.say(f"building {folder} from holotype.lock …")
+        options = InstallerOptions(list(find_links), index_url, no_index)
         session.emit(rebuild_environment(project, folder, python=python, installer=options))
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def export(
-    fmt: Annotated[ExportFormat, typer.Option("--format", help="requirements or pylock.")] = ExportFormat.requirements,
-    output: OutputOpt = None,
-    find_links: Annotated[Optional[list[Path]], typer.Option(
-        "--find-links", help="Folders with the locked wheels (pylock needs their hashes).")] = None,
-    project: ProjectOpt = Path("."),
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """Write the locked packages as requirements.txt pins or a PEP 751 pylock.toml."""
+@click.option("--format", "fmt", type=click.Choice(("requirements", "pylock")), default="requirements",
+              show_default=True, help="requirements.txt pins or a PEP 751 pylock.toml.")
+@click.option("--output", type=click.Path(path_type=Path), default=None, help="Write to FILE instead of stdout.")
+@click.option("--find-links", multiple=True, type=click.Path(path_type=Path),
+              help="Folders holding the locked wheels (pylock needs their hashes).")
+@common(findings=False)
+def export(project: Path, fmt: str, output: Path | None, find_links: tuple[Path, ...], quiet: bool,
+           no_color: bool) -> None:
+    """Write the locked packages in an open standard format."""
     session = Session(project, quiet=quiet, no_color=no_color)
 
     def body() -> None:
         from holotype.commands.export import export_lock
 
-        _write_or_print(session, export_lock(project, fmt.value, list(find_links or [])), output)
+        _write_or_print(session, export_lock(project, fmt, list(find_links)), output)
 
-    guarded(body)
+    run_guarded(body)
 
 
 @app.command()
-def report(
-    fmt: Annotated[ReportFormat, typer.Option("--format", help="markdown or html.")] = ReportFormat.markdown,
-    output: OutputOpt = None,
-    project: ProjectOpt = Path("."),
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
+@click.option("--format", "fmt", type=click.Choice(("markdown", "html")), default="markdown", show_default=True,
+              help="Markdown, or one self-contained HTML file.")
+@click.option("--output", type=click.Path(path_type=Path), default=None, help="Write to FILE instead of stdout.")
+@common(findings=False)
+def report(project: Path, fmt: str, output: Path | None, quiet: bool, no_color: bool) -> None:
     """A methods and provenance appendix for a thesis or paper."""
     session = Session(project, quiet=quiet, no_color=no_color)
 
     def body() -> None:
         from holotype.commands.report import build_report
 
-        _write_or_print(session, build_report(project, fmt.value), output)
+        _write_or_print(session, build_report(project, fmt), output)
 
-    guarded(body)
+    run_guarded(body)
 
 
 def _write_or_print(session: Session, text: str, output: Path | None) -> None:
@@ -430,13 +395,10 @@ def _write_or_print(session: Session, text: str, output: Path | None) -> None:
 
 
 @app.command()
-def demo(
-    folder: Annotated[Path, typer.Argument(help="Where to write the demo project (new or empty).")] = Path(
-        "holotype-demo"),
-    quiet: QuietOpt = False,
-    no_color: NoColorOpt = False,
-) -> None:
-    """The whole cycle on a bundled, invented lake survey."""
+@click.argument("folder", required=False, type=click.Path(path_type=Path), default=Path("holotype-demo"))
+@_quiet_color
+def demo(folder: Path, quiet: bool, no_color: bool) -> None:
+    """The whole cycle on a bundled, invented lake survey (FOLDER: new or empty, default ./holotype-demo)."""
     session = Session(Path("."), quiet=quiet, no_color=no_color)
 
     def body() -> None:
@@ -449,9 +411,9 @@ def demo(
             console = Console(file=open(os.devnull, "w"))
         run_demo(folder, console)
 
-    guarded(body)
+    run_guarded(body)
 
 
 def main() -> None:
     """Console-script entry point."""
-    app()
+    app(prog_name="holotype")

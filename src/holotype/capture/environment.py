@@ -50,31 +50,47 @@ def resolve_python(configured: str | None, root: Path, override: str | None = No
     return str(path), how
 
 
+class ProbeRun:
+    """The probe running in the target interpreter; start it early, collect the answer when needed."""
+
+    def __init__(self, python: str, cwd: Path, how: str = "") -> None:
+        self.python = python
+        self.how = how
+        env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME", "PYTHONSTARTUP")}
+        env["PYTHONIOENCODING"] = "utf-8"
+        try:
+            self.proc = subprocess.Popen([python, "-c", probe_source()], cwd=cwd, env=env, stdin=subprocess.DEVNULL,
+                                         stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        except OSError as exc:
+            where = f" (from {how})" if how else ""
+            raise HolotypeError(f"cannot run target interpreter {python}{where}: {exc.strerror}; "
+                                "set python = \"...\" in holotype.toml or pass --python PATH") from None
+
+    def result(self) -> dict[str, Any]:
+        """Wait for the probe and return its parsed JSON."""
+        try:
+            out, err = self.proc.communicate(timeout=PROBE_TIMEOUT)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.communicate()
+            raise HolotypeError(f"target interpreter {self.python} did not answer within {PROBE_TIMEOUT}s") from None
+        if self.proc.returncode != 0:
+            tail = err.decode("utf-8", "replace").strip().splitlines()[-1:] or ["no error text"]
+            raise HolotypeError(f"target interpreter {self.python} failed to describe itself: {tail[0]} "
+                                "(holotype needs Python 3.8 or newer there)")
+        try:
+            doc = json.loads(out)
+        except ValueError:
+            raise HolotypeError(f"target interpreter {self.python} printed something that is not the probe's "
+                                "JSON") from None
+        if not isinstance(doc, dict) or doc.get("probe_format") != 1:
+            raise HolotypeError(f"target interpreter {self.python}: unexpected probe answer")
+        return doc
+
+
 def run_probe(python: str, cwd: Path, how: str = "") -> dict[str, Any]:
     """Execute the probe with `python` in `cwd` and return its parsed JSON."""
-    env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME", "PYTHONSTARTUP")}
-    env["PYTHONIOENCODING"] = "utf-8"
-    try:
-        proc = subprocess.run(
-            [python, "-c", probe_source()],
-            cwd=cwd, env=env, capture_output=True, timeout=PROBE_TIMEOUT, stdin=subprocess.DEVNULL,
-        )
-    except OSError as exc:
-        raise HolotypeError(f"cannot run target interpreter {python}{' (from ' + how + ')' if how else ''}: "
-                            f"{exc.strerror}; set python = \"...\" in holotype.toml or pass --python PATH") from None
-    except subprocess.TimeoutExpired:
-        raise HolotypeError(f"target interpreter {python} did not answer within {PROBE_TIMEOUT}s") from None
-    if proc.returncode != 0:
-        tail = proc.stderr.decode("utf-8", "replace").strip().splitlines()[-1:] or ["no error text"]
-        raise HolotypeError(f"target interpreter {python} failed to describe itself: {tail[0]} "
-                            "(holotype needs Python 3.8 or newer there)")
-    try:
-        doc = json.loads(proc.stdout)
-    except ValueError:
-        raise HolotypeError(f"target interpreter {python} printed something that is not the probe's JSON") from None
-    if not isinstance(doc, dict) or doc.get("probe_format") != 1:
-        raise HolotypeError(f"target interpreter {python}: unexpected probe answer")
-    return doc
+    return ProbeRun(python, cwd, how).result()
 
 
 def environment_from_probe(doc: dict[str, Any], root: Path | None = None) -> Environment:

@@ -29,8 +29,34 @@ def _stdlib_names():
     return sorted(found)
 
 
+def _headers(text):
+    """Name, Version and Requires-Dist from a METADATA text: the header block only, without the
+    email parser (which is the slow part of importlib.metadata)."""
+    name = version = None
+    requires = []
+    last = None
+    for line in text.splitlines():
+        if not line:
+            break  # the body (long description) starts here
+        if line[0] in " \t":  # a folded continuation (may be all white space)
+            if last == "requires" and requires:
+                requires[-1] += " " + line.strip()
+            continue
+        key, _, value = line.partition(":")
+        key = key.strip().lower()
+        value = value.strip()
+        last = None
+        if key == "name" and name is None:
+            name = value
+        elif key == "version" and version is None:
+            version = value
+        elif key == "requires-dist":
+            requires.append(value)
+            last = "requires"
+    return name, version, requires
+
+
 def _top_level_names(dist):
-    text = None
     try:
         text = dist.read_text("top_level.txt")
     except Exception:
@@ -43,11 +69,12 @@ def _top_level_names(dist):
                 names.add(line.split(".")[0])
         return sorted(names)
     try:
-        files = dist.files or []
+        record = dist.read_text("RECORD") or ""
     except Exception:
-        files = []
-    for entry in files:
-        parts = str(entry).replace("\\", "/").split("/")
+        record = ""
+    for row in record.splitlines():
+        path = row.rsplit(",", 2)[0].strip('"') if row.count(",") >= 2 else row
+        parts = path.replace("\\", "/").split("/")
         first = parts[0]
         if first.endswith((".dist-info", ".egg-info", ".data")) or first in ("..", "__pycache__", ""):
             continue
@@ -68,10 +95,11 @@ def _distributions():
     result = []
     for dist in metadata.distributions():
         try:
-            name = dist.metadata["Name"]
+            text = dist.read_text("METADATA") or dist.read_text("PKG-INFO") or ""
         except Exception:
-            name = None
-        if not name:
+            text = ""
+        name, version, requires = _headers(text)
+        if not name or not version:
             continue
         key = name.lower()
         if key in seen:  # the first one on sys.path is the one imports see
@@ -90,10 +118,10 @@ def _distributions():
         result.append(
             {
                 "name": name,
-                "version": dist.version,
+                "version": version,
                 "installer": (installer or "").strip() or None,
                 "requested": requested,
-                "requires": list(dist.requires or []),
+                "requires": requires,
                 "top_level": _top_level_names(dist),
                 "direct_url": origin,
             }

@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from holotype.capture.digest_cache import DigestCache
-from holotype.capture.environment import capture_environment, resolve_python
+from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
 from holotype.capture.imports import scan_imports
 from holotype.capture.usage import declared_requirements, mark_used, used_closure
@@ -40,15 +40,21 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
                     progress: HashProgress | None = None) -> ProjectCapture:
     """Everything `record` writes and `check` compares, except analysis outputs."""
     python, how = resolve_python(config.python, config.root, python_override)
-    env = capture_environment(python, config.root, how)
-    data_files, code_files, unmatched = tracked_files(config)
-    scan = scan_imports([(rel, f.path) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
-    env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
-    cache = None if full else DigestCache()
+    probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
     try:
-        data = fingerprint_files(data_files, cache=cache, progress=progress)
-        code = fingerprint_files(code_files, cache=cache)
+        data_files, code_files, unmatched = tracked_files(config)
+        scan = scan_imports([(rel, f.path) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
+        cache = None if full else DigestCache()
+        try:
+            data = fingerprint_files(data_files, cache=cache, progress=progress)
+            code = fingerprint_files(code_files, cache=cache)
+        finally:
+            if cache is not None:
+                cache.close()
+        env = environment_from_probe(probe.result(), config.root)
     finally:
-        if cache is not None:
-            cache.close()
+        if probe.proc.poll() is None:
+            probe.proc.kill()
+            probe.proc.communicate()
+    env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
     return ProjectCapture(env, python, data, code, scan.problems, unmatched)
