@@ -42,4 +42,4 @@ def wall_and_peak(argv: list[str]) -> tuple[float, float]:
 def ratio_line(label: str, ours: float, baseline: float, target: float, unit: str = "s") -> str:
     r = ours / baseline
     verdict = "meets" if r <= target else "MISSES"
-    return f"{label}: {ours:.3f}{unit} vs {baseline:.3f}{unit} = {r:.2f}x (target <= {target}x: {verdict})"
+    return f"{label}: {ours:.4f}{unit} vs {baseline:.4f}{unit} = {r:.3f}x (target <= {target}x: {verdict})"

@@ -5,7 +5,7 @@ from __future__ import annotations
 import hashlib
 import os
 import threading
-from concurrent.futures import FIRST_COMPLETED, Future, ThreadPoolExecutor, wait
+from collections import deque
 from dataclasses import dataclass, field
 from typing import Protocol
 
@@ -41,10 +41,21 @@ class _Counter:
             self.bytes += n
 
 
+_buffers = threading.local()
+
+
+def _buffer() -> bytearray:
+    # one reusable buffer per thread: allocating 1 MiB per file dominates when files are small
+    buf = getattr(_buffers, "buf", None)
+    if buf is None:
+        buf = _buffers.buf = bytearray(CHUNK)
+    return buf
+
+
 def sha256_file(path: str | os.PathLike[str], counter: _Counter | None = None) -> str:
     """Stream the file through SHA-256 (FIPS 180-4) in 1 MiB chunks."""
     h = hashlib.sha256()
-    buf = bytearray(CHUNK)
+    buf = _buffer()
     view = memoryview(buf)
     with open(path, "rb", buffering=0) as fh:
         while True:
@@ -72,6 +83,46 @@ class _Unstable(Exception):
     pass
 
 
+Outcome = tuple[str, os.stat_result] | OSError | _Unstable
+
+
+def _hash_all(items: list[ProjectFile], counter: _Counter, workers: int | None,
+              progress: HashProgress | None) -> list[Outcome]:
+    """Hash on a few threads that take the next file from a shared queue (linear in the file count)."""
+    outcomes: list[Outcome | None] = [None] * len(items)
+    queue = deque(range(len(items)))
+    done = [0]
+    lock = threading.Lock()
+
+    def work() -> None:
+        while True:
+            try:
+                index = queue.popleft()
+            except IndexError:
+                return
+            try:
+                outcomes[index] = _hash_stable(items[index].path, counter)
+            except (OSError, _Unstable) as exc:
+                outcomes[index] = exc
+            with lock:
+                done[0] += 1
+
+    count = max(1, min(workers or os.cpu_count() or 1, len(items)))
+    threads = [threading.Thread(target=work, name=f"holotype-hash-{i}", daemon=True) for i in range(count)]
+    for t in threads:
+        t.start()
+    try:
+        for t in threads:
+            while t.is_alive():
+                t.join(timeout=0.1)
+                if progress is not None:
+                    progress.advance(counter.bytes, done[0])
+    finally:
+        if progress is not None:
+            progress.end()
+    return [o if o is not None else OSError(0, "not hashed") for o in outcomes]
+
+
 def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | None = None,
                       progress: HashProgress | None = None, workers: int | None = None) -> FingerprintResult:
     """Digest every file; links are recorded by their target text; problems are returned, not raised."""
@@ -91,15 +142,17 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
             continue
         to_hash.append((item, st))
 
-    known: dict[Identity, str] = cache.lookup([identity_of(st) for _, st in to_hash]) if cache else {}
+    identities = [identity_of(st) for _, st in to_hash]
+    known: dict[Identity, str] = cache.lookup(identities) if cache else {}
     pending: list[tuple[ProjectFile, os.stat_result]] = []
-    for item, st in to_hash:
-        digest = known.get(identity_of(st))
+    records = result.records
+    for (item, st), ident in zip(to_hash, identities):
+        digest = known.get(ident)
         if digest is not None:
-            result.records[item.rel] = FileRecord(item.rel, "file", size=st.st_size, sha256=digest)
-            result.cache_hits += 1
+            records[item.rel] = FileRecord(item.rel, "file", st.st_size, digest)
         else:
             pending.append((item, st))
+    result.cache_hits = len(to_hash) - len(pending)
 
     pending.sort(key=lambda pair: pair[1].st_size, reverse=True)  # a giant file must not start last
     counter = _Counter()
@@ -108,39 +161,21 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
     if pending:
         if progress is not None:
             progress.begin(len(pending), total)
-        workers = max(1, min(workers or os.cpu_count() or 1, len(pending)))
-        done_files = 0
-        try:
-            with ThreadPoolExecutor(max_workers=workers, thread_name_prefix="holotype-hash") as pool:
-                futures: dict[Future[tuple[str, os.stat_result]], ProjectFile] = {
-                    pool.submit(_hash_stable, str(item.path), counter): item for item, _ in pending
-                }
-                remaining = set(futures)
-                while remaining:
-                    finished, remaining = wait(remaining, timeout=0.1, return_when=FIRST_COMPLETED)
-                    for fut in finished:
-                        item = futures[fut]
-                        done_files += 1
-                        try:
-                            digest, st = fut.result()
-                        except _Unstable:
-                            result.problems[item.rel] = ("unstable", "kept changing while being read; "
-                                                         "stop whatever writes it and record again")
-                            continue
-                        except OSError as exc:
-                            result.problems[item.rel] = ("unreadable", f"cannot read: {exc.strerror}")
-                            continue
-                        result.records[item.rel] = FileRecord(item.rel, "file", size=st.st_size, sha256=digest)
-                        result.files_hashed += 1
-                        fresh.append((identity_of(st), digest))
-                    if progress is not None:
-                        progress.advance(counter.bytes, done_files)
-        finally:
-            if progress is not None:
-                progress.end()
+        outcomes = _hash_all([item for item, _ in pending], counter, workers, progress)
+        for item, outcome in zip((item for item, _ in pending), outcomes):
+            if isinstance(outcome, tuple):
+                digest, st = outcome
+                result.records[item.rel] = FileRecord(item.rel, "file", size=st.st_size, sha256=digest)
+                result.files_hashed += 1
+                fresh.append((identity_of(st), digest))
+            elif isinstance(outcome, _Unstable):
+                result.problems[item.rel] = ("unstable", "kept changing while being read; "
+                                             "stop whatever writes it and record again")
+            else:
+                result.problems[item.rel] = ("unreadable", f"cannot read: {outcome.strerror}")
     result.bytes_hashed = counter.bytes
     if cache is not None and fresh:
         cache.store(fresh)
-    result.records = dict(sorted(result.records.items()))
+    result.records = {rel: result.records[rel] for rel in sorted(result.records)}
     return result
 

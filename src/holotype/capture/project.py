@@ -43,7 +43,7 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
     probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
     try:
         data_files, code_files, unmatched = tracked_files(config)
-        scan = scan_imports([(rel, f.path) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
+        scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
         cache = None if full else DigestCache()
         try:
             data = fingerprint_files(data_files, cache=cache, progress=progress)

@@ -22,7 +22,7 @@ GLOB_CHARS = frozenset("*?[")
 @dataclass(frozen=True)
 class ProjectFile:
     rel: str  # project-relative POSIX path
-    path: Path
+    path: str  # as the OS names it (a str: building a Path per file costs more than the stat)
     is_link: bool
     size: int
 
@@ -106,31 +106,33 @@ class ProjectWalker:
                               "set allow_outside = true to permit it", self.config_path)
 
     def _walk_folder(self, folder: str, out: dict[str, ProjectFile]) -> None:
-        stack = [folder]
+        # relative names are built by joining strings: os.path.relpath per file is the slow part otherwise
+        start_rel = self._rel(folder)
+        stack = [(folder, "" if start_rel == "." else start_rel + "/")]
         while stack:
-            current = stack.pop()
+            current, prefix = stack.pop()
             try:
                 with os.scandir(current) as it:
                     entries = list(it)
             except OSError:
-                continue  # unreadable folder: nothing inside it can be listed; the folder is reported by caller
+                continue  # unreadable folder: nothing inside it can be listed
             for entry in entries:
                 full = entry.path
-                rel = self._rel(full)
-                if is_excluded(rel, self.excludes):
+                rel = prefix + entry.name
+                if self.excludes and is_excluded(rel, self.excludes):
                     continue
                 try:
                     if entry.is_symlink():
                         self._check_link(full, rel)
-                        out[rel] = ProjectFile(rel, Path(full), True, 0)
+                        out[rel] = ProjectFile(rel, full, True, 0)
                     elif entry.is_dir(follow_symlinks=False):
                         if entry.name in SKIP_FOLDERS or os.path.exists(os.path.join(full, "pyvenv.cfg")):
                             continue
-                        stack.append(full)
+                        stack.append((full, rel + "/"))
                     elif entry.is_file(follow_symlinks=False):
-                        out[rel] = ProjectFile(rel, Path(full), False, entry.stat(follow_symlinks=False).st_size)
+                        out[rel] = ProjectFile(rel, full, False, entry.stat(follow_symlinks=False).st_size)
                 except OSError:
-                    out[rel] = ProjectFile(rel, Path(full), False, 0)
+                    out[rel] = ProjectFile(rel, full, False, 0)
 
     def _add_path(self, full: str, rel: str, out: dict[str, ProjectFile]) -> None:
         try:
@@ -139,11 +141,11 @@ class ProjectWalker:
             return
         if stat.S_ISLNK(st.st_mode):
             self._check_link(full, rel)
-            out[rel] = ProjectFile(rel, Path(full), True, 0)
+            out[rel] = ProjectFile(rel, full, True, 0)
         elif stat.S_ISDIR(st.st_mode):
             self._walk_folder(full, out)
         elif stat.S_ISREG(st.st_mode):
-            out[rel] = ProjectFile(rel, Path(full), False, st.st_size)
+            out[rel] = ProjectFile(rel, full, False, st.st_size)
 
     def collect(self, patterns: tuple[str, ...]) -> tuple[dict[str, ProjectFile], list[str]]:
         """Files matched by `patterns` (files, folders or globs), and the patterns that matched nothing."""
