@@ -21,7 +21,7 @@ from holotype.compare.source import Source, UnreadableOutput
 from holotype.compare.tally import Tally
 from holotype.compare.tolerance import RuleBook, Tolerance
 
-CHUNK_ROWS = 200_000
+CHUNK_ROWS = 50_000
 SHOWN = 5
 
 

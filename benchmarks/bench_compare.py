@@ -1,0 +1,62 @@
+"""Two 1,000,000 x 10 float CSV files (17 significant digits, one with 1e-12 relative noise) compared at
+rtol = 1e-9: `holotype compare` vs pandas.read_csv on both + pandas.testing.assert_frame_equal, same run.
+
+Run: python benchmarks/bench_compare.py [--rows N]
+"""
+
+from __future__ import annotations
+
+import argparse
+import statistics
+import sys
+from pathlib import Path
+
+import numpy as np
+
+from _timing import WORK, ratio_line, wall_and_peak
+
+BASELINE = """
+import sys, pandas as pd
+a = pd.read_csv(sys.argv[1]); b = pd.read_csv(sys.argv[2])
+pd.testing.assert_frame_equal(a, b, check_exact=False, rtol=1e-9)
+"""
+
+
+def make_files(rows: int) -> tuple[Path, Path]:
+    folder = WORK / "compare"
+    folder.mkdir(parents=True, exist_ok=True)
+    expected, actual = folder / f"expected-{rows}.csv", folder / f"actual-{rows}.csv"
+    if expected.exists() and actual.exists():
+        return expected, actual
+    rng = np.random.default_rng(20261201)
+    header = ",".join(f"v{i}" for i in range(10)) + "\n"
+    with open(expected, "w") as fe, open(actual, "w") as fa:
+        fe.write(header)
+        fa.write(header)
+        for start in range(0, rows, 100_000):
+            block = rng.standard_normal((min(100_000, rows - start), 10)) * 1e3
+            noisy = block * (1 + 1e-12 * rng.standard_normal(block.shape))
+            np.savetxt(fe, block, fmt="%.17g", delimiter=",")
+            np.savetxt(fa, noisy, fmt="%.17g", delimiter=",")
+    return expected, actual
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser()
+    parser.add_argument("--rows", type=int, default=1_000_000)
+    parser.add_argument("--repeat", type=int, default=3)
+    args = parser.parse_args()
+    expected, actual = make_files(args.rows)
+    print(f"{args.rows:,} x 10 floats, {expected.stat().st_size / 1e6:.0f} MB per file")
+    ours = [wall_and_peak([sys.executable, "-m", "holotype", "compare", str(expected), str(actual), "--rtol", "1e-9",
+                           "--quiet"]) for _ in range(args.repeat)]
+    base = [wall_and_peak([sys.executable, "-c", BASELINE, str(expected), str(actual)]) for _ in range(args.repeat)]
+    ours_wall, base_wall = statistics.median(w for w, _ in ours), statistics.median(w for w, _ in base)
+    ours_peak, base_peak = max(p for _, p in ours), max(p for _, p in base)
+    print(ratio_line("wall time, holotype compare vs pandas", ours_wall, base_wall, 1.0))
+    print(ratio_line("peak memory, holotype compare vs pandas", ours_peak, base_peak, 0.5, unit=" MiB"))
+
+
+if __name__ == "__main__":
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    main()
