@@ -222,8 +222,7 @@ def test_changed_seed_moves_seeded_outputs(project: Path) -> None:
 
 
 def test_dependency_order_and_cycles(tmp_path: Path) -> None:
-    from holotype.capture.runs import run_order
-    from holotype.config import Analysis
+    from holotype.config import Analysis, run_order
     from holotype.errors import ConfigError
 
     a = Analysis("report", "python r.py", ("out/r.txt",), ("out/s.csv",))

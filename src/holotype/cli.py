@@ -125,7 +125,7 @@ def _fail(message: str) -> NoReturn:
 
 
 def _project(f: F) -> F:
-    return click.option("--project", "-C", "project", type=click.Path(path_type=Path), default=Path("."),
+    return click.option("--project", "-C", "project", type=PATH, default=Path("."),
                         show_default=False, help="The project folder (default: the current folder).")(f)
 
 
@@ -135,7 +135,7 @@ def _quiet_color(f: F) -> F:
 
 
 def _findings_output(f: F) -> F:
-    f = click.option("--output", type=click.Path(path_type=Path), default=None,
+    f = click.option("--output", type=PATH, default=None,
                      help="Also write the report to FILE (atomically).")(f)
     return click.option("--format", "fmt", type=click.Choice(FINDING_FORMATS), default="text", show_default=True,
                         help="How to report findings.")(f)
@@ -159,7 +159,40 @@ def common(*, findings: bool = True, python: bool = False) -> Callable[[F], F]:
     return decorate
 
 
-@click.group(context_settings=CONTEXT)
+class PathParam(click.ParamType):
+    """A path argument; a NUL byte is a usage error rather than a crash inside the OS call."""
+
+    name = "path"
+
+    def convert(self, value: Any, param: click.Parameter | None, ctx: click.Context | None) -> Path:
+        text = os.fspath(value)
+        if "\x00" in text:
+            self.fail(f"{text!r} contains a NUL byte", param, ctx)
+        return Path(text)
+
+
+PATH = PathParam()
+
+
+class HolotypeGroup(click.Group):
+    """Usage errors as one line on stderr with exit 2, like every other error holotype reports."""
+
+    def main(self, args: Any = None, prog_name: str | None = None, complete_var: str | None = None,
+             standalone_mode: bool = True, **extra: Any) -> Any:
+        try:
+            code = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except click.UsageError as exc:
+            where = f" (see 'holotype {exc.ctx.command.name} --help')" if exc.ctx and exc.ctx.parent else \
+                " (see 'holotype --help')"
+            _fail(exc.format_message() + where)
+        except click.Abort:
+            _fail("interrupted")
+        except click.ClickException as exc:
+            _fail(exc.format_message())
+        sys.exit(code if isinstance(code, int) else 0)
+
+
+@click.group(cls=HolotypeGroup, context_settings=CONTEXT)
 @click.version_option(__version__, "--version", prog_name="holotype", message="%(prog)s %(version)s")
 def app() -> None:
     """Record exactly what a data analysis ran on, and prove later that it still gives the same numbers."""
@@ -275,8 +308,8 @@ def accept(project: Path, names: tuple[str, ...], reason: str | None, fmt: str, 
 
 
 @app.command()
-@click.argument("expected", type=click.Path(path_type=Path))
-@click.argument("actual", type=click.Path(path_type=Path))
+@click.argument("expected", type=PATH)
+@click.argument("actual", type=PATH)
 @click.option("--atol", type=float, default=None, help="Absolute tolerance.")
 @click.option("--rtol", type=float, default=None, help="Tolerance relative to the expected value.")
 @click.option("--ulps", type=int, default=None, help="Distance in IEEE-754 binary64 steps.")
@@ -301,8 +334,8 @@ def compare(project: Path, expected: Path, actual: Path, atol: float | None, rto
 
 
 @app.command()
-@click.argument("a", required=False, type=click.Path(path_type=Path))
-@click.argument("b", required=False, type=click.Path(path_type=Path))
+@click.argument("a", required=False, type=PATH)
+@click.argument("b", required=False, type=PATH)
 @click.option("--rev", default=None, help="Compare the lock committed at this git revision with the working copy's.")
 @common()
 def diff(project: Path, a: Path | None, b: Path | None, rev: str | None, fmt: str, output: Path | None, quiet: bool,
@@ -326,7 +359,7 @@ def diff(project: Path, a: Path | None, b: Path | None, rev: str | None, fmt: st
 
 
 @app.command()
-@click.argument("folder", type=click.Path(path_type=Path))
+@click.argument("folder", type=PATH)
 @click.option("--python", default=None, help="Interpreter to build it with (default: one of the locked version).")
 @click.option("--find-links", multiple=True, help="Passed to the installer (repeatable).")
 @click.option("--index-url", default=None, help="Passed to the installer.")
@@ -350,8 +383,8 @@ def rebuild(project: Path, folder: Path, python: str | None, find_links: tuple[s
 @app.command()
 @click.option("--format", "fmt", type=click.Choice(("requirements", "pylock")), default="requirements",
               show_default=True, help="requirements.txt pins or a PEP 751 pylock.toml.")
-@click.option("--output", type=click.Path(path_type=Path), default=None, help="Write to FILE instead of stdout.")
-@click.option("--find-links", multiple=True, type=click.Path(path_type=Path),
+@click.option("--output", type=PATH, default=None, help="Write to FILE instead of stdout.")
+@click.option("--find-links", multiple=True, type=PATH,
               help="Folders holding the locked wheels (pylock needs their hashes).")
 @common(findings=False)
 def export(project: Path, fmt: str, output: Path | None, find_links: tuple[Path, ...], quiet: bool,
@@ -370,7 +403,7 @@ def export(project: Path, fmt: str, output: Path | None, find_links: tuple[Path,
 @app.command()
 @click.option("--format", "fmt", type=click.Choice(("markdown", "html")), default="markdown", show_default=True,
               help="Markdown, or one self-contained HTML file.")
-@click.option("--output", type=click.Path(path_type=Path), default=None, help="Write to FILE instead of stdout.")
+@click.option("--output", type=PATH, default=None, help="Write to FILE instead of stdout.")
 @common(findings=False)
 def report(project: Path, fmt: str, output: Path | None, quiet: bool, no_color: bool) -> None:
     """A methods and provenance appendix for a thesis or paper."""
@@ -395,7 +428,7 @@ def _write_or_print(session: Session, text: str, output: Path | None) -> None:
 
 
 @app.command()
-@click.argument("folder", required=False, type=click.Path(path_type=Path), default=Path("holotype-demo"))
+@click.argument("folder", required=False, type=PATH, default=Path("holotype-demo"))
 @_quiet_color
 def demo(folder: Path, quiet: bool, no_color: bool) -> None:
     """The whole cycle on a bundled, invented lake survey (FOLDER: new or empty, default ./holotype-demo)."""

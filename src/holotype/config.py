@@ -58,6 +58,31 @@ class Config:
                           self.source)
 
 
+def run_order(analyses: tuple[Analysis, ...], source: Path | None = None) -> list[Analysis]:
+    """Declared order, except that an analysis reading another's output runs after it; cycles are errors."""
+    producer = {out: a.name for a in analyses for out in a.outputs}
+    by_name = {a.name: a for a in analyses}
+    order: list[Analysis] = []
+    state: dict[str, int] = {}  # 1 visiting, 2 done
+
+    def visit(a: Analysis, chain: list[str]) -> None:
+        if state.get(a.name) == 2:
+            return
+        if state.get(a.name) == 1:
+            raise ConfigError("analyses depend on each other in a cycle: " + " → ".join(chain + [a.name]), source)
+        state[a.name] = 1
+        for inp in a.inputs:
+            dep = producer.get(inp)
+            if dep is not None and dep != a.name:
+                visit(by_name[dep], chain + [a.name])
+        state[a.name] = 2
+        order.append(a)
+
+    for a in analyses:
+        visit(a, [])
+    return order
+
+
 def _suggest(name: str, known: tuple[str, ...] | list[str]) -> str:
     close = difflib.get_close_matches(name, list(known), n=1)
     return f" (did you mean '{close[0]}'?)" if close else ""
@@ -192,6 +217,8 @@ def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
             if out in seen_outputs:
                 raise v.fail(f"output '{out}' is declared by both '{seen_outputs[out]}' and '{a.name}'")
             seen_outputs[out] = a.name
+
+    run_order(tuple(analyses), source)  # a dependency cycle is a config error, found before anything runs
 
     policy_table = doc.get("policy", {})
     if not isinstance(policy_table, dict):

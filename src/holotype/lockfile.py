@@ -146,6 +146,10 @@ def write_lock(path: Path, lock: Lock) -> None:
 # ----------------------------------------------------------------------------- reading
 
 
+_TYPE_WORDS: dict[type, str] = {dict: "a table", str: "a string", int: "an integer", float: "a number",
+                                 list: "a list", bool: "true or false"}
+
+
 class _Reader:
     def __init__(self, path: Path) -> None:
         self.path = path
@@ -163,7 +167,8 @@ class _Reader:
         if kind is float and isinstance(value, int) and not isinstance(value, bool):
             ok, value = True, float(value)
         if not ok:
-            raise self.fail(f"key '{where}{key}' should be {kind.__name__}, found {type(value).__name__}")
+            raise self.fail(f"key '{where}{key}' should be {_TYPE_WORDS.get(kind, kind.__name__)}, "
+                            f"found {_TYPE_WORDS.get(type(value), type(value).__name__)}")
         return value  # type: ignore[no-any-return]
 
     def table(self, parent: dict[str, Any], key: str, where: str) -> dict[str, Any]:

@@ -35,6 +35,17 @@ def strip_credentials(url: str) -> str:
     return urllib.parse.urlunsplit((parts.scheme, netloc, parts.path, query, parts.fragment))
 
 
+def hide_home(url: str) -> str:
+    """A file:// URL under the recording user's home folder, written with ~ so the lock names no user."""
+    import os
+
+    home = os.path.expanduser("~").rstrip("/")
+    prefix = "file://" + home + "/"
+    if home and home != "/" and url.startswith(prefix):
+        return "file://~/" + url[len(prefix):]
+    return url
+
+
 def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
     """Build an Origin from a parsed direct_url.json; `None` means installed from an index."""
     if doc is None:
@@ -47,7 +58,7 @@ def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
         parsed = DirectUrl.from_dict(doc)
     except (DirectUrlValidationError, TypeError, ValueError):
         return Origin("unknown", url=strip_credentials(doc["url"]))
-    url = strip_credentials(parsed.url)
+    url = hide_home(strip_credentials(parsed.url))
     if parsed.vcs_info is not None:
         return Origin(
             "vcs",

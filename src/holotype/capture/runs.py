@@ -16,7 +16,6 @@ from typing import IO, Protocol, TextIO
 
 from holotype.baselines import STORE_FOLDER
 from holotype.config import Analysis, Config
-from holotype.errors import ConfigError
 from holotype.seeds import ANALYSIS_VARIABLE, PROJECT_SEED_VARIABLE, SEED_VARIABLE, derive_seed
 
 THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS",
@@ -57,31 +56,6 @@ class RunResult:
         if self.returncode != 0:
             return f"exited with code {self.returncode}" + (f": {tail}" if tail else "")
         return "did not write " + ", ".join(self.missing)
-
-
-def run_order(analyses: tuple[Analysis, ...], source: Path | None = None) -> list[Analysis]:
-    """Declared order, except that an analysis reading another's output runs after it; cycles are errors."""
-    producer = {out: a.name for a in analyses for out in a.outputs}
-    by_name = {a.name: a for a in analyses}
-    order: list[Analysis] = []
-    state: dict[str, int] = {}  # 1 visiting, 2 done
-
-    def visit(a: Analysis, chain: list[str]) -> None:
-        if state.get(a.name) == 2:
-            return
-        if state.get(a.name) == 1:
-            raise ConfigError("analyses depend on each other in a cycle: " + " → ".join(chain + [a.name]), source)
-        state[a.name] = 1
-        for inp in a.inputs:
-            dep = producer.get(inp)
-            if dep is not None and dep != a.name:
-                visit(by_name[dep], chain + [a.name])
-        state[a.name] = 2
-        order.append(a)
-
-    for a in analyses:
-        visit(a, [])
-    return order
 
 
 def seeding_folder() -> str:

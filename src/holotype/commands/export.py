@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import os
 from pathlib import Path
 from typing import Any
 
@@ -10,6 +11,13 @@ from holotype import __version__
 from holotype.errors import HolotypeError
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import Lock, PackageRecord
+
+
+def expand_home(url: str) -> str:
+    """Undo the lock's file://~/ shorthand for the machine exporting it."""
+    if url.startswith("file://~/"):
+        return "file://" + os.path.expanduser("~/") + url[len("file://~/"):]
+    return url
 
 
 def requirement_line(pkg: PackageRecord) -> str:
@@ -22,7 +30,7 @@ def requirement_line(pkg: PackageRecord) -> str:
         frag = f"#{o.archive_hash}" if o.archive_hash and "#" not in o.url else ""
         return f"{pkg.name} @ {o.url}{frag}"
     if o.kind in ("directory", "editable") and o.url:
-        return f"{pkg.name} @ {o.url}"
+        return f"{pkg.name} @ {expand_home(o.url)}"
     return f"{pkg.name}=={pkg.version}"
 
 
@@ -71,7 +79,7 @@ def pylock_dict(lock: Lock, find_links: list[Path]) -> dict[str, Any]:
                                               "requested-revision": o.requested_revision,
                                               "subdirectory": o.subdirectory}.items() if v}
         elif o.kind in ("directory", "editable") and o.url:
-            entry["directory"] = {"path": o.url.removeprefix("file://"), "editable": o.kind == "editable"}
+            entry["directory"] = {"path": expand_home(o.url).removeprefix("file://"), "editable": o.kind == "editable"}
         elif o.kind == "archive" and o.url and o.archive_hash and "=" in o.archive_hash:
             algo, digest = o.archive_hash.split("=", 1)
             entry["archive"] = {"url": o.url, "hashes": {algo: digest}}

@@ -95,7 +95,7 @@ def rebuild_environment(root: Path, target: Path, *, python: str | None = None,
         if name in present and present[name].version == pkg.version and pkg.origin.kind == "index":
             continue  # the fresh environment already has it (pip itself, usually)
         if pkg.origin.kind in ("directory", "editable") and pkg.origin.url:
-            local = pkg.origin.url.removeprefix("file://")
+            local = os.path.expanduser(pkg.origin.url.removeprefix("file://"))
             if not os.path.isdir(local):
                 raise HolotypeError(f"{name} was installed from the local folder {local}, which does not exist here")
         lines.append(requirement_line(pkg))

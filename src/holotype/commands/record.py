@@ -14,10 +14,10 @@ from holotype.atomic import remove_stale_temps, write_atomic
 from holotype.baselines import STORE_FOLDER, BaselineStore
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
-from holotype.capture.runs import RunProgress, run_analysis, run_order
-from holotype.config import Config, load_config
+from holotype.capture.runs import RunProgress, run_analysis
+from holotype.config import Config, load_config, run_order
 from holotype.config_edit import add_seed
-from holotype.errors import HolotypeError, LockfileError
+from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Report
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
@@ -85,8 +85,9 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         findings: list[Finding] = []
         for rel, (kind, message) in capture.data.problems.items():
             findings.append(Finding("data", rel, f"data.{kind}", message))
-        for pattern in capture.unmatched_data:
-            findings.append(Finding("data", pattern, "data.missing", "matches no file"))
+        if capture.unmatched_data:
+            raise ConfigError(f"data pattern '{capture.unmatched_data[0]}' matches no file; fix 'data' or add the "
+                              "files", config.source)
         old = previous_lock(root)
         analyses: dict[str, AnalysisRecord] = {}
         store = BaselineStore(root)

@@ -9,11 +9,11 @@ from pathlib import Path
 from holotype.atomic import write_atomic
 from holotype.baselines import STORE_FOLDER, BaselineError, BaselineStore
 from holotype.capture.environment import resolve_python
-from holotype.capture.runs import RunProgress, RunResult, analysis_environment, command_for, run_analysis, run_order
+from holotype.capture.runs import RunProgress, RunResult, analysis_environment, command_for, run_analysis
 from holotype.compare.outputs import compare_sources
 from holotype.compare.source import Source, UnreadableOutput
 from holotype.compare.tolerance import RuleBook, Tolerance
-from holotype.config import Analysis, Config, load_config
+from holotype.config import Analysis, Config, load_config, run_order
 from holotype.errors import ConfigError
 from holotype.findings import Finding, Report
 from holotype.findings.policy import apply_policy
