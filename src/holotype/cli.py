@@ -116,7 +116,9 @@ def run_guarded(action: Callable[[], Any]) -> Any:
 
 
 def _fail(message: str) -> NoReturn:
-    sys.stderr.write(f"holotype: {message}\n")
+    from holotype.errors import one_line
+
+    sys.stderr.write(f"holotype: {one_line(message)}\n")
     sys.stderr.flush()
     sys.exit(2)
 
