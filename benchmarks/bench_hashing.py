@@ -15,7 +15,6 @@ import time
 from pathlib import Path
 
 from _timing import WORK, median_seconds, ratio_line
-
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.fingerprints import fingerprint_files
 from holotype.capture.walk import ProjectWalker

@@ -299,3 +299,18 @@ def test_ragged_csv_is_exit_2(tmp_path: Path) -> None:
     b = write(tmp_path / "b.csv", "x,y\n1,2\n3,4,5\n")
     result = run_cli("compare", a, b)
     assert result.code == 2 and "b.csv" in result.err and "Traceback" not in result.err
+
+
+def test_parquet_tables(tmp_path: Path) -> None:
+    pa = pytest.importorskip("pyarrow")  # the optional extra holotype[parquet]; the test extra installs it
+    import pyarrow.parquet as pq
+
+    table = pa.table({"lake": ["A", "B", "C"], "depth": [1.5, 2.5, 4.0]})
+    pq.write_table(table, tmp_path / "a.parquet")
+    pq.write_table(pa.table({"lake": ["A", "B", "C"], "depth": [1.5, 2.5 * (1 + 1e-12), 4.1]}), tmp_path / "b.parquet")
+    code, doc, _ = compare(tmp_path / "a.parquet", tmp_path / "b.parquet")
+    [f] = output_findings(doc)
+    assert code == 1 and f["worst"] == "row 3, column depth" and f["mismatches"] == 1
+    (tmp_path / "bad.parquet").write_bytes(b"PAR1 not really")
+    result = run_cli("compare", tmp_path / "a.parquet", tmp_path / "bad.parquet")
+    assert result.code == 2 and "bad.parquet" in result.err

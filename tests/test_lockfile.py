@@ -11,8 +11,17 @@ import pytest
 from holotype.atomic import TEMP_PREFIX, write_atomic
 from holotype.errors import LockfileError
 from holotype.lockfile import dump_lock, read_lock, write_lock
-from holotype.records import (AnalysisRecord, FileRecord, HistoryEntry, Interpreter, Lock, Origin, OutputRecord,
-                              PackageRecord, PlatformInfo)
+from holotype.records import (
+    AnalysisRecord,
+    FileRecord,
+    HistoryEntry,
+    Interpreter,
+    Lock,
+    Origin,
+    OutputRecord,
+    PackageRecord,
+    PlatformInfo,
+)
 
 
 def sample_lock() -> Lock:

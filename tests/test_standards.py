@@ -10,7 +10,6 @@ from holotype.capture.origins import origin_from_direct_url, strip_credentials
 from holotype.compare.environment import compare_packages
 from holotype.records import PackageRecord
 
-
 # PEP 440, "Summary of permitted suffixes and relative ordering": this sequence is in ascending order.
 PEP440_ORDER = ["1.dev0", "1.0.dev456", "1.0a1", "1.0a2.dev456", "1.0a12.dev456", "1.0a12", "1.0b1.dev456",
                 "1.0b2", "1.0b2.post345.dev456", "1.0b2.post345", "1.0rc1.dev456", "1.0rc1", "1.0", "1.0+abc.5",

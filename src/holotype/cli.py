@@ -161,7 +161,7 @@ def common(*, findings: bool = True, python: bool = False) -> Callable[[F], F]:
     return decorate
 
 
-class PathParam(click.ParamType):
+class PathParam(click.ParamType):  # type: ignore[type-arg]
     """A path argument; a NUL byte is a usage error rather than a crash inside the OS call."""
 
     name = "path"

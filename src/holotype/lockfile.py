@@ -205,7 +205,8 @@ def lock_from_dict(doc: dict[str, Any], path: Path) -> Lock:
     r = _Reader(path)
     fmt = r.get(doc, "format", int, "")
     if fmt > FORMAT:
-        raise r.fail(f"written by a newer holotype (format {fmt}); this holotype reads format {FORMAT} — upgrade holotype")
+        raise r.fail(f"written by a newer holotype (format {fmt}); this holotype reads format {FORMAT} — "
+                     "upgrade holotype")
     if fmt < 1:
         raise r.fail(f"unknown format {fmt}")
     it = r.table(doc, "interpreter", "")
@@ -285,7 +286,8 @@ def lock_from_dict(doc: dict[str, Any], path: Path) -> Lock:
             if not isinstance(change, dict):
                 raise r.fail(f"key '{where}changes' should hold tables")
             changes.append(
-                (r.get(change, "output", str, where), r.get(change, "old", str, where), r.get(change, "new", str, where))
+                (r.get(change, "output", str, where), r.get(change, "old", str, where),
+                 r.get(change, "new", str, where))
             )
         history.append(
             HistoryEntry(

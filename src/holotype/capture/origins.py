@@ -77,6 +77,6 @@ def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
         if info.hashes:
             algo = "sha256" if "sha256" in info.hashes else sorted(info.hashes)[0]
             digest = f"{algo}={info.hashes[algo]}"
-        elif info.hash:
-            digest = info.hash
+        elif getattr(info, "hash", None):  # the legacy single-hash field
+            digest = str(info.hash)  # type: ignore[attr-defined]
     return Origin("archive", url=url, archive_hash=digest, subdirectory=parsed.subdirectory)

@@ -140,7 +140,7 @@ def _libc():
 def _marker_environment():
     # The PEP 508 marker variables, computed as packaging computes them.
     info = sys.implementation
-    version = "{0.major}.{0.minor}.{0.micro}".format(info.version)
+    version = f"{info.version.major}.{info.version.minor}.{info.version.micro}"
     if info.version.releaselevel != "final":
         version += info.version.releaselevel[0] + str(info.version.serial)
     return {

@@ -9,6 +9,7 @@ import subprocess
 import threading
 import time
 from collections import deque
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
@@ -91,6 +92,18 @@ def command_for(run: str, python: str) -> list[str]:
     if argv and argv[0] in ("python", "python3"):
         argv[0] = python
     return argv
+
+
+def run_each(config: Config, python: str, analyses: list[Analysis], project_seed: int,
+             progress: RunProgress | None = None) -> Iterator[RunResult]:
+    """Run analyses one after another, telling the progress display; yields each result as it finishes."""
+    for index, analysis in enumerate(analyses):
+        if progress is not None:
+            progress.started(analysis.name, index, len(analyses))
+        result = run_analysis(config, python, analysis, project_seed, progress=progress)
+        if progress is not None:
+            progress.finished(analysis.name, result.ok, result.seconds)
+        yield result
 
 
 def _stamp(path: Path) -> tuple[int, int, int, int] | None:

@@ -47,7 +47,7 @@ def used_closure(env: Environment, imported: set[str], declared: list[str]) -> s
             req = Requirement(text)
         except InvalidRequirement:
             continue
-        if req.marker is None or req.marker.evaluate(dict(env.markers) or None):  # type: ignore[arg-type]
+        if req.marker is None or req.marker.evaluate(dict(env.markers) or None):
             queue.append((canonicalize_name(req.name), frozenset(req.extras)))
     seen: set[tuple[str, frozenset[str]]] = set()
     used: set[str] = set()
@@ -65,7 +65,7 @@ def used_closure(env: Environment, imported: set[str], declared: list[str]) -> s
             if req.marker is not None:
                 marker_env = dict(env.markers)
                 wanted = extras or frozenset({""})
-                if not any(req.marker.evaluate({**marker_env, "extra": e}) for e in wanted):  # type: ignore[arg-type]
+                if not any(req.marker.evaluate({**marker_env, "extra": e}) for e in wanted):
                     continue
             queue.append((canonicalize_name(req.name), frozenset(req.extras)))
     return used

@@ -7,7 +7,7 @@ from typing import Any
 
 from holotype.compare.outputs import compare_paths
 from holotype.compare.source import UnreadableOutput
-from holotype.compare.tolerance import NUMERIC_KEYS, DEFAULT_TOLERANCE, Rule, RuleBook, Tolerance, parse_rule_settings
+from holotype.compare.tolerance import DEFAULT_TOLERANCE, NUMERIC_KEYS, Rule, RuleBook, Tolerance, parse_rule_settings
 from holotype.errors import HolotypeError, InputError
 from holotype.findings import Report
 from holotype.findings.policy import apply_policy

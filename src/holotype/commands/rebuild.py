@@ -9,6 +9,7 @@ import sys
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from holotype.atomic import write_atomic
 from holotype.capture.environment import capture_environment
 from holotype.commands.check import check_project
 from holotype.commands.export import requirement_line
@@ -102,7 +103,7 @@ def rebuild_environment(root: Path, target: Path, *, python: str | None = None,
     findings: list[Finding] = []
     if lines:
         req_file = target / "holotype-requirements.txt"
-        req_file.write_text("\n".join(lines) + "\n", encoding="utf-8")
+        write_atomic(req_file, "\n".join(lines) + "\n")
         proc = subprocess.run([venv_python, "-m", "pip", "install", "--disable-pip-version-check", "--no-deps",
                                "-r", str(req_file), *installer.args()], capture_output=True, text=True)
         if proc.returncode != 0:

@@ -5,8 +5,8 @@ from __future__ import annotations
 import hashlib
 import os
 import secrets
-from dataclasses import dataclass
-from datetime import datetime, timezone
+from dataclasses import dataclass, replace
+from datetime import UTC, datetime
 from pathlib import Path
 
 from holotype import __version__
@@ -14,7 +14,8 @@ from holotype.atomic import remove_stale_temps, write_atomic
 from holotype.baselines import STORE_FOLDER, BaselineStore
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
-from holotype.capture.runs import RunProgress, run_analysis
+from holotype.capture.runs import RunProgress, run_each
+from holotype.commands.rerun import failure_finding
 from holotype.config import Config, load_config, run_order
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
@@ -32,8 +33,8 @@ STORE_GITIGNORE = ("# holotype: the baselines are committed; logs, the busy mark
 def timestamp() -> str:
     """UTC time of the record (SOURCE_DATE_EPOCH wins, for byte-reproducible locks)."""
     epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    moment = datetime.fromtimestamp(int(epoch), timezone.utc) if epoch and epoch.isdigit() \
-        else datetime.now(timezone.utc)
+    moment = datetime.fromtimestamp(int(epoch), UTC) if epoch and epoch.isdigit() \
+        else datetime.now(UTC)
     return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
@@ -48,15 +49,13 @@ def ensure_store(root: Path) -> None:
     BaselineStore(root).clean_temps()
 
 
-def ensure_seed(config: Config) -> tuple[Config, str | None]:
-    """The config with a project seed, drawing one and writing it back if absent."""
+def ensure_seed(config: Config) -> tuple[Config, bool]:
+    """The config with a project seed (drawn now if absent), and whether it still has to be written back."""
     if config.seed is not None:
-        return config, None
+        return config, False
     if config.source is None:
         raise HolotypeError("no holotype.toml here; run 'holotype start' first", config.root)
-    seed = 1 + secrets.randbelow(2**31 - 1)
-    add_seed(config.source, seed)
-    return load_config(config.root), f"drew project seed {seed} and wrote it to {config.source.name}"
+    return replace(config, seed=1 + secrets.randbelow(2**31 - 1)), True
 
 
 @dataclass
@@ -79,7 +78,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
     config = load_config(root)
     with project_lock(root):
         ensure_store(root)
-        config, seed_note = ensure_seed(config)
+        config, new_seed = ensure_seed(config)
         assert config.seed is not None
         capture = capture_project(config, python_override=python, progress=hash_progress)
         findings: list[Finding] = []
@@ -93,15 +92,11 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         store = BaselineStore(root)
         if run:
             pending: list[tuple[str, bytes]] = []
-            for index, analysis in enumerate(run_order(config.analyses, config.source)):
-                if run_progress is not None:
-                    run_progress.started(analysis.name, index, len(config.analyses))
-                result = run_analysis(config, capture.python, analysis, config.seed, progress=run_progress)
-                if run_progress is not None:
-                    run_progress.finished(analysis.name, result.ok, result.seconds)
+            ordered = run_order(config.analyses, config.source)
+            for result in run_each(config, capture.python, ordered, config.seed, run_progress):
+                analysis = result.analysis
                 if not result.ok:
-                    findings.append(Finding("analysis", analysis.name, "analysis.failed",
-                                            f"{result.failure_text()} (log: {result.log.relative_to(root)})"))
+                    findings.append(failure_finding(result, root))
                     continue
                 outputs = {}
                 for out, data in result.outputs.items():
@@ -127,6 +122,10 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         if run:
             for _out, data in pending:
                 store.put(data)
+        seed_note = None
+        if new_seed and config.source is not None:  # written only now that the record succeeded
+            add_seed(config.source, config.seed)
+            seed_note = f"drew project seed {config.seed} and wrote it to {config.source.name}"
         lock = Lock(
             interpreter=capture.environment.interpreter,
             platform=capture.environment.platform,

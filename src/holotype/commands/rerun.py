@@ -9,7 +9,7 @@ from pathlib import Path
 from holotype.atomic import write_atomic
 from holotype.baselines import STORE_FOLDER, BaselineError, BaselineStore
 from holotype.capture.environment import resolve_python
-from holotype.capture.runs import RunProgress, RunResult, analysis_environment, command_for, run_analysis
+from holotype.capture.runs import RunProgress, RunResult, analysis_environment, command_for, run_analysis, run_each
 from holotype.compare.outputs import compare_sources
 from holotype.compare.source import Source, UnreadableOutput
 from holotype.compare.tolerance import RuleBook, Tolerance
@@ -25,6 +25,12 @@ EXACT = RuleBook(default=Tolerance())
 NONDETERMINISM_CAUSES = ("an unseeded random generator (use holotype.seeds.rng() or set seed_globals = true), "
                          "more than one BLAS/OpenMP thread (set threads = 1), iteration over a set or dict "
                          "of strings, or the time or date in the output")
+
+
+def failure_finding(result: RunResult, root: Path) -> Finding:
+    """An analysis that crashed, timed out or wrote no output: the error text and where its log is."""
+    return Finding("analysis", result.analysis.name, "analysis.failed",
+                   f"{result.failure_text()} (log: {result.log.relative_to(root)})")
 
 
 def select_analyses(config: Config, names: list[str] | None) -> list[Analysis]:
@@ -137,16 +143,11 @@ def rerun_project(root: Path, names: list[str] | None = None, *, twice: bool = F
         return Report("rerun", apply_policy(findings + plan(config, interpreter, analyses, project_seed),
                                             config.policy), notes=("dry run: nothing was run",))
     store = BaselineStore(root)
-    for index, analysis in enumerate(analyses):
+    for result in run_each(config, interpreter, analyses, project_seed, progress):
+        analysis = result.analysis
         record = lock.analyses.get(analysis.name)
-        if progress is not None:
-            progress.started(analysis.name, index, len(analyses))
-        result = run_analysis(config, interpreter, analysis, project_seed, progress=progress)
-        if progress is not None:
-            progress.finished(analysis.name, result.ok, result.seconds)
         if not result.ok:
-            findings.append(Finding("analysis", analysis.name, "analysis.failed",
-                                    f"{result.failure_text()} (log: {result.log.relative_to(root)})"))
+            findings.append(failure_finding(result, root))
             continue
         findings.append(Finding("analysis", analysis.name, "analysis.ran",
                                 f"ran in {result.seconds:.1f}s with seed {result.seed}"))

@@ -93,11 +93,11 @@ def compare_arrays(output: str, expected: Source, actual: Source, rules: RuleBoo
                     judge_ = ColumnJudge(f"{label}[..., {j}]{suffix}".strip(), tol)
                     es, as_ = ep64[..., j].reshape(-1), ap64[..., j].reshape(-1)
                     sub_shape = ep64.shape[:-1]
-                    judge_.numeric(es, as_, lambda i, j=j, s=sub_shape: f"{label}index {_slice_index(s, i, j)}")
+                    judge_.numeric(es, as_, lambda i, j=j, s=sub_shape, lb=label: f"{lb}index {_slice_index(s, i, j)}")
                     outcome.tallies.append(judge_.result())
             else:
                 judge_ = ColumnJudge(f"{label}{suffix}".strip() or "values", tol)
                 judge_.numeric(ep64.reshape(-1), ap64.reshape(-1),
-                               lambda i, s=ep64.shape: f"{label}index {_index_text(s, i)}{suffix}")
+                               lambda i, s=ep64.shape, lb=label, sx=suffix: f"{lb}index {_index_text(s, i)}{sx}")
                 outcome.tallies.append(judge_.result())
     return outcome

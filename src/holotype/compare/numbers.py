@@ -25,7 +25,7 @@ _SIGN = np.int64(-0x8000000000000000)
 def ordered_bits(x: np.ndarray) -> np.ndarray:
     """Map binary64 values to int64 so that integer order equals numeric order (-0.0 and +0.0 map to 0)."""
     bits = np.ascontiguousarray(x, dtype=np.float64).view(np.int64)
-    return np.where(bits < 0, _SIGN - bits, bits)
+    return np.asarray(np.where(bits < 0, _SIGN - bits, bits), dtype=np.int64)
 
 
 def ulp_distance(expected: np.ndarray, actual: np.ndarray) -> np.ndarray:
@@ -34,7 +34,8 @@ def ulp_distance(expected: np.ndarray, actual: np.ndarray) -> np.ndarray:
     e = ordered_bits(expected).astype(np.uint64)
     forward = a - e  # wraps modulo 2**64; the shorter way round is the distance
     backward = e - a
-    return np.minimum(forward, backward)
+    distance: np.ndarray = np.minimum(forward, backward)
+    return distance
 
 
 def log_relative_error(expected: np.ndarray, actual: np.ndarray) -> np.ndarray:

@@ -181,8 +181,10 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
             if e_chunk is None and a_chunk is None:
                 break
             if first:
-                e_cols = [str(c) for c in (e_chunk if e_chunk is not None else a_chunk).columns]
-                a_cols = [str(c) for c in (a_chunk if a_chunk is not None else e_chunk).columns]
+                head: Any = e_chunk if e_chunk is not None else a_chunk
+                other: Any = a_chunk if a_chunk is not None else e_chunk
+                e_cols = [str(c) for c in head.columns]
+                a_cols = [str(c) for c in other.columns]
                 compared, _ = plan_columns(output, e_cols, a_cols, rules, outcome)
                 judges = {c: ColumnJudge(c, rules.for_column(output, c)) for c in compared}
                 first = False

@@ -124,7 +124,8 @@ class Tally:
             self.decades[k] = self.decades.get(k, 0) + v
         better = other.worst_where is not None and (
             (other.worst_failed and not self.worst_failed)
-            or (other.worst_failed == self.worst_failed and (self.worst_where is None or other._worst_rel > self._worst_rel)))
+            or (other.worst_failed == self.worst_failed
+                and (self.worst_where is None or other._worst_rel > self._worst_rel)))
         if better:
             self.worst_where, self.worst_expected, self.worst_actual = (other.worst_where, other.worst_expected,
                                                                         other.worst_actual)

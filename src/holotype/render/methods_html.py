@@ -9,7 +9,8 @@ from holotype import __version__
 from holotype.commands.report import CAUTION, OutputLine, Provenance
 
 STYLE = """
-body { font-family: Georgia, 'Times New Roman', serif; max-width: 52em; margin: 2em auto; color: #111; line-height: 1.4 }
+body { font-family: Georgia, 'Times New Roman', serif; max-width: 52em; margin: 2em auto; color: #111;
+       line-height: 1.4 }
 table { border-collapse: collapse; margin: 0.5em 0 1.5em; font-size: 0.9em }
 th, td { border-bottom: 1px solid #999; padding: 0.2em 0.6em; text-align: left; vertical-align: top }
 code { font-size: 0.85em; word-break: break-all }
@@ -21,7 +22,7 @@ LOW, HIGH = -17, 1  # decades shown on the error axis
 
 
 class ErrorChart:
-    """Each output's largest relative error against its tolerance, on a log scale; shapes, not colours, carry meaning."""
+    """Each output's largest relative error against its tolerance, log scale; shapes, not colours, carry meaning."""
 
     def __init__(self, analysis: str, lines: list[OutputLine]) -> None:
         self.analysis = analysis

@@ -7,8 +7,17 @@ from collections import deque
 
 from rich.console import Console, Group
 from rich.live import Live
-from rich.progress import (BarColumn, DownloadColumn, MofNCompleteColumn, Progress, TaskID, TextColumn,
-                           TimeElapsedColumn, TimeRemainingColumn, TransferSpeedColumn)
+from rich.progress import (
+    BarColumn,
+    DownloadColumn,
+    MofNCompleteColumn,
+    Progress,
+    TaskID,
+    TextColumn,
+    TimeElapsedColumn,
+    TimeRemainingColumn,
+    TransferSpeedColumn,
+)
 from rich.text import Text
 
 SHOW_AFTER_SECONDS = 1.0

@@ -17,7 +17,7 @@ def _seed_value():
         return None
 
 
-class _SeedNumpyAfterImport(object):
+class _SeedNumpyAfterImport:
     """Finds nothing itself; wraps the real loader of numpy.random to seed it once loaded."""
 
     def __init__(self, seed):
@@ -26,7 +26,6 @@ class _SeedNumpyAfterImport(object):
     def find_spec(self, name, path=None, target=None):
         if name != "numpy.random":
             return None
-        import importlib.machinery
 
         for finder in sys.meta_path:
             if finder is self or not hasattr(finder, "find_spec"):
@@ -38,7 +37,7 @@ class _SeedNumpyAfterImport(object):
         return None
 
 
-class _SeedingLoader(object):
+class _SeedingLoader:
     def __init__(self, inner, seed):
         self.inner = inner
         self.seed = seed

@@ -2,12 +2,13 @@
 
 import csv
 import os
+from typing import Any
 
 CHEMISTRY = ["temperature_c", "oxygen_mg_l", "ph", "conductivity_us_cm", "chlorophyll_ug_l", "turbidity_ntu",
              "phosphorus_ug_l"]
 
 
-def principal_components(matrix):
+def principal_components(matrix: Any) -> tuple[Any, Any, Any]:
     """Loadings (variables x components), explained variances and scores of the standardised matrix."""
     import numpy as np
 
@@ -18,7 +19,7 @@ def principal_components(matrix):
     return vt.T, variances, u * s
 
 
-def main():
+def main() -> None:
     import numpy as np
 
     rows = list(csv.DictReader(open("data/lakes.csv", newline="")))

@@ -3,12 +3,14 @@
 import csv
 import math
 import os
+from collections.abc import Sequence
+from typing import Any
 
 VARIABLES = ["depth_m", "temperature_c", "oxygen_mg_l", "ph", "conductivity_us_cm", "chlorophyll_ug_l",
              "turbidity_ntu", "phosphorus_ug_l"]
 
 
-def describe(values):
+def describe(values: Sequence[float]) -> dict[str, Any]:
     """n, mean, sample standard deviation (two-pass), standard error of the mean, median, quartiles."""
     import numpy as np
 
@@ -24,7 +26,7 @@ def describe(values):
     return {"n": n, "mean": mean, "sd": sd, "sem": sd / math.sqrt(n), "median": median, "q1": q1, "q3": q3}
 
 
-def main():
+def main() -> None:
     rows = list(csv.DictReader(open("data/lakes.csv", newline="")))
     os.makedirs("results", exist_ok=True)
     with open("results/summary.csv", "w", newline="") as fh:
