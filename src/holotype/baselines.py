@@ -55,9 +55,6 @@ class BaselineStore:
             raise BaselineError(f"baseline {path} does not match its SHA-256 (damaged or edited)")
         return data
 
-    def has(self, digest: str) -> bool:
-        return self.path_for(digest).exists()
-
     def clean_temps(self) -> None:
         if self.folder.is_dir():
             for sub in self.folder.iterdir():

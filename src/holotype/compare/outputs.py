@@ -49,12 +49,6 @@ FORMATS: dict[str, Comparer] = {
 }
 
 
-def format_of(name: str) -> str:
-    """The format holotype compares `name` in ('bytes' when it has no numeric reader)."""
-    suffix = os.path.splitext(name)[1].lower()
-    return suffix.lstrip(".") if suffix in FORMATS else "bytes"
-
-
 def _fmt(x: float) -> str:
     return f"{x:.3g}" if math.isfinite(x) else "∞"
 

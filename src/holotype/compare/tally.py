@@ -14,14 +14,6 @@ from holotype.compare.tolerance import Tolerance
 EXAMPLES_KEPT = 5
 
 
-def decade_label(rel: float) -> str:
-    if rel == 0:
-        return "exact"
-    if not math.isfinite(rel):
-        return "inf"
-    return f"1e{math.floor(math.log10(rel))}"
-
-
 def _sort_decades(counts: dict[str, int]) -> dict[str, int]:
     def key(label: str) -> float:
         return -math.inf if label == "exact" else math.inf if label == "inf" else float(label[2:])
@@ -94,7 +86,6 @@ class Tally:
         if nfail and len(self.examples) < EXAMPLES_KEPT:
             for j in np.where(failed)[0][: EXAMPLES_KEPT - len(self.examples)].tolist():
                 self.examples.append(f"{where(j)}: {expected[j]!r} recorded, {actual[j]!r} found")
-
 
     def add_exact(self, equal: bool, where: str, expected: Any, actual: Any) -> None:
         """One non-numeric cell (text, missing, or a kind mismatch) compared exactly."""

@@ -105,9 +105,6 @@ class RuleBook:
                 tol = tol.overlay(rule.settings)
         return tol
 
-    def has_column_rules(self, output: str) -> bool:
-        return any(r.column_glob is not None and fnmatchcase(output, r.output_glob) for r in self.rules)
-
 
 def parse_rule_settings(table: dict[str, Any], where: str) -> dict[str, Any]:
     """Validate rule keys from config or CLI flags; raise ValueError with a message naming `where`."""

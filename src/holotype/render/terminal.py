@@ -13,11 +13,6 @@ SEVERITY_STYLE = {"fail": "bold red", "warn": "yellow", "info": "dim"}
 SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
 
 
-def _short(value: object, width: int = 40) -> str:
-    text = "" if value is None else str(value)
-    return text if len(text) <= width else text[: width - 1] + "…"
-
-
 class FindingsTable:
     """One table of findings; output findings carry their error figures in the message column."""
 
