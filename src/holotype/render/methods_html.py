@@ -85,8 +85,8 @@ def render_methods_html(prov: Provenance) -> str:
              "<h2>Environment</h2>",
              f"<p>{escape(it.implementation)} {escape(it.version)} ({escape(it.compiler)}) on {escape(pf.system)} "
              f"{escape(pf.release)}, {escape(pf.machine)}; C library {escape(pf.libc_text)}. "
-             f"{len(used)} packages are used by the analysis; {len(lock.packages) - len(used)} other installed "
-             "packages are recorded in holotype.lock.</p>",
+             f"Packages used by the analysis: {len(used)}; other installed packages recorded in holotype.lock: "
+             f"{len(lock.packages) - len(used)}.</p>",
              _table(["package", "version", "origin"],
                     [[escape(p.name), escape(p.version), escape(p.origin.describe())] for p in used]),
              "<h2>Data</h2>",
