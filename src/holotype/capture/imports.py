@@ -72,7 +72,7 @@ def scan_imports(files: list[tuple[str, Path]]) -> ImportScan:
             try:
                 tree = ast.parse(source, filename=rel)
             except (SyntaxError, ValueError) as exc:
-                where = f"cell {index + 1}, " if rel.endswith(".ipynb") else ""
+                where = f"code cell {index + 1}, " if rel.endswith(".ipynb") else ""
                 line = getattr(exc, "lineno", None)
                 scan.problems.append((rel, f"skipped imports: syntax error at {where}line {line}"))
                 continue
