@@ -110,3 +110,13 @@ def test_project_moved_to_another_folder_checks_clean(project: tuple[Path, objec
     result = run_cli("check", "-C", moved, "--format", "json")
     data = [f for f in _json(result)["findings"] if f["area"] in ("data", "code")]
     assert data == []
+
+
+def test_package_the_code_starts_importing_counts_as_used(project: tuple[Path, object]) -> None:
+    root, venv = project
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    write(root / "analysis" / "plot.py", "import gamma\n")  # gamma was unrelated tooling at record time
+    venv.install("gamma==2.0")  # type: ignore[attr-defined]
+    doc = _json(run_cli("check", "-C", root, "--format", "json"))
+    [gamma] = [f for f in doc["findings"] if f["subject"] == "gamma"]
+    assert gamma["severity"] == "fail" and "not used" not in gamma["message"]

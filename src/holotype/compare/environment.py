@@ -51,12 +51,14 @@ def _direction(old: str, new: str) -> str:
 
 def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord],
                      then: str = "recorded", now: str = "found", gone: str = "not installed") -> list[Finding]:
-    """Drift of every recorded package; its kind depends on whether the project uses it."""
+    """Drift of every recorded package; its kind depends on whether the project uses it (then or now:
+    a package the code has started to import since the record counts as used)."""
     out: list[Finding] = []
     for name in sorted(old):
         rec = old[name]
-        kind = "package.used" if rec.used else "package.unrelated"
-        role = "" if rec.used else " (not used by the analysis)"
+        used = rec.used or (name in new and new[name].used)
+        kind = "package.used" if used else "package.unrelated"
+        role = "" if used else " (not used by the analysis)"
         found = new.get(name)
         if found is None:
             out.append(Finding("package", name, kind, f"version {rec.version} {then}, {gone}{role}",
