@@ -124,6 +124,23 @@ def test_unreadable_file_is_a_finding(project: Path) -> None:
     assert code == 1 and any(f["kind"] == "data.unreadable" for f in findings)
 
 
+def test_read_error_is_a_finding_with_the_os_error(project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the same path as chmod 000, reachable as root too: the OS refuses the read
+    import holotype.capture.fingerprints as fp
+
+    real = fp.sha256_file
+
+    def refuse(path: str, counter: object = None) -> str:
+        if path.endswith("lakes.csv"):
+            raise PermissionError(13, "Permission denied", path)
+        return real(path, counter)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(fp, "sha256_file", refuse)
+    code, findings = check(project, "--full")
+    [bad] = [f for f in findings if f["kind"] == "data.unreadable"]
+    assert code == 1 and bad["subject"] == "data/lakes.csv" and "Permission denied" in bad["message"]
+
+
 def test_code_change_warns(project: Path) -> None:
     write(project / "analysis" / "run.py", "import json\nprint(1)\n")
     code, findings = check(project)
