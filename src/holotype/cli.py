@@ -431,10 +431,11 @@ def _write_or_print(session: Session, text: str, output: Path | None) -> None:
 
 @app.command()
 @click.argument("folder", required=False, type=PATH, default=Path("holotype-demo"))
-@_quiet_color
-def demo(folder: Path, quiet: bool, no_color: bool) -> None:
+@common(findings=False)
+def demo(project: Path, folder: Path, quiet: bool, no_color: bool) -> None:
     """The whole cycle on a bundled, invented lake survey (FOLDER: new or empty, default ./holotype-demo)."""
-    session = Session(Path("."), quiet=quiet, no_color=no_color)
+    session = Session(project, quiet=quiet, no_color=no_color)
+    folder = project / folder
 
     def body() -> None:
         from holotype.demo.tour import run_demo
