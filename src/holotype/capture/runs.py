@@ -158,8 +158,8 @@ def run_analysis(config: Config, python: str, analysis: Analysis, project_seed: 
             except subprocess.TimeoutExpired:
                 result.timed_out = True
                 try:
-                    os.killpg(proc.pid, signal.SIGKILL)
-                except OSError:
+                    os.killpg(proc.pid, signal.SIGKILL)  # the whole process group: children too
+                except (OSError, AttributeError):  # no process groups (Windows): the process itself
                     proc.kill()
             reader.join(timeout=5)
             result.returncode = proc.wait()

@@ -66,7 +66,6 @@ class AnalysisPanel:
                                  TimeElapsedColumn(), console=console)
         self.task = self.progress.add_task("analyses", total=None)
         self.live: Live | None = None
-        self.name = ""
 
     def _view(self) -> Group:
         lines = [Text("  " + line[:160], style="dim") for line in self.tail]
@@ -76,9 +75,7 @@ class AnalysisPanel:
         if self.live is None:
             self.live = Live(self._view(), console=self.console, refresh_per_second=8, transient=True)
             self.live.start()
-        self.name = name
         self.tail.clear()
-        self.progress.update(self.task, description=f"running {name}", total=total, completed=index)
         self.progress.reset(self.task, total=total, completed=index, description=f"running {name}")
 
     def output(self, name: str, line: str) -> None:
