@@ -314,3 +314,14 @@ def test_parquet_tables(tmp_path: Path) -> None:
     (tmp_path / "bad.parquet").write_bytes(b"PAR1 not really")
     result = run_cli("compare", tmp_path / "a.parquet", tmp_path / "bad.parquet")
     assert result.code == 2 and "bad.parquet" in result.err
+
+
+def test_terminal_breakdown_names_the_columns_that_moved(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setenv("COLUMNS", "200")
+    a = write(tmp_path / "a.csv", "site,mean,sd\nA,1.5,0.25\nB,2.5,0.5\n")
+    b = write(tmp_path / "b.csv", "site,mean,sd\nA,1.5,0.30\nB,2.5,0.5\n")
+    result = run_cli("compare", a, b)
+    assert result.code == 1
+    assert "b.csv: where the values moved" in result.out
+    [row] = [line for line in result.out.splitlines() if line.startswith("sd ")]
+    assert "1/2" in row and "row 1, column sd" in row and "0.2" in row  # relative error 0.05/0.25

@@ -40,6 +40,11 @@ class FindingsTable:
                 table.add_row(Text(SEVERITY_LABEL[f.severity], style=SEVERITY_STYLE[f.severity]), f.area,
                               Text(f.subject), message)
             parts.append(table)
+        for f in rows:
+            if f.severity == "fail" and f.stats is not None and f.stats.columns:
+                detail = ColumnBreakdown(f)
+                if detail.failing:
+                    parts.append(detail)
         for note in self.report.notes:
             parts.append(Text(note, style="dim"))
         parts.append(self.verdict())
@@ -53,6 +58,42 @@ class FindingsTable:
             return Text.assemble((f"{word}: ", "bold green"), summary)
         word = {"compare": "differ", "rerun": "not reproduced"}.get(self.report.command, "not ok")
         return Text.assemble((f"{word}: ", "bold red"), summary)
+
+
+def _num(x: object) -> str:
+    if isinstance(x, float):
+        return f"{x:.3g}"
+    return str(x)
+
+
+class ColumnBreakdown:
+    """For a failing output: each column (or JSON path, or array) outside tolerance, worst first."""
+
+    SHOWN = 8
+
+    def __init__(self, finding: Finding) -> None:
+        assert finding.stats is not None
+        self.finding = finding
+        columns = [c for c in finding.stats.columns if c.get("mismatches")]
+        self.failing = sorted(columns, key=lambda c: -float(c["max_rel_err"]) if c["max_rel_err"] != "inf"
+                              else -float("inf"))
+
+    def __rich__(self) -> RenderableType:
+        table = Table(title=f"{self.finding.subject}: where the values moved", title_justify="left",
+                      title_style="bold", show_edge=False, header_style="dim", pad_edge=False, expand=False)
+        shown = self.failing[: self.SHOWN]
+        per_column = len({c["tolerance"] for c in shown}) > 1  # otherwise the finding above already says it
+        headers = [("column", "left"), ("outside", "right"), ("max abs err", "right"), ("max rel err", "right"),
+                   ("digits", "right"), ("worst", "left")] + ([("tolerance", "left")] if per_column else [])
+        for name, justify in headers:
+            table.add_column(name, justify=justify, overflow="fold")  # type: ignore[arg-type]
+        for c in shown:
+            cells = [str(c["name"]), f"{c['mismatches']:,}/{c['compared']:,}", _num(c["max_abs_err"]),
+                     _num(c["max_rel_err"]), f"{c['min_lre']:.1f}", str(c["worst"] or "")]
+            table.add_row(*cells, *([str(c["tolerance"])] if per_column else []))
+        if len(self.failing) > self.SHOWN:
+            table.caption = f"and {len(self.failing) - self.SHOWN} more column(s) outside tolerance"
+        return table
 
 
 def decade_line(f: Finding) -> str:
