@@ -284,3 +284,19 @@ def test_seed_globals_chains_an_existing_sitecustomize(tmp_path: Path) -> None:
                          capture_output=True, text=True)
     np.random.seed(42)
     assert float(out.stdout) == np.random.random()
+
+
+def test_check_notices_missing_or_damaged_baselines_without_running(project: Path) -> None:
+    lock = read_lock(project / "holotype.lock")
+    digest = lock.analyses["stats"].outputs["results/test.json"].sha256
+    path = BaselineStore(project).path_for(digest)
+    original = path.read_bytes()
+    path.write_bytes(gzip.compress(b"{}"))
+    assert run_cli("check", "-C", project).code == 0  # existence only, by default: cheap
+    full = run_cli("check", "--full", "-C", project, "--format", "json")
+    assert full.code == 1 and "does not match its SHA-256" in full.out
+    path.unlink()
+    missing = run_cli("check", "-C", project, "--format", "json")
+    assert missing.code == 1 and "was .holotype/ committed?" in missing.out
+    path.write_bytes(original)
+    assert run_cli("check", "--full", "-C", project).code == 0

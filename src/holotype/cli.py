@@ -245,7 +245,7 @@ def record(project: Path, no_run: bool, python: str | None, fmt: str, output: Pa
 
 
 @app.command()
-@click.option("--full", is_flag=True, help="Hash every file again, ignoring the digest cache.")
+@click.option("--full", is_flag=True, help="Hash every file again (no digest cache) and verify every baseline.")
 @click.option("--strict", is_flag=True, help="Treat warnings as failures.")
 @common(python=True)
 def check(project: Path, full: bool, strict: bool, python: str | None, fmt: str, output: Path | None, quiet: bool,

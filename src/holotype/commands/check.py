@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from holotype.baselines import BaselineError, BaselineStore
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
@@ -49,6 +50,24 @@ def compare_seeds_and_analyses(config: Config, lock: Lock) -> list[Finding]:
     return out
 
 
+def check_baselines(root: Path, lock: Lock, *, verify: bool) -> list[Finding]:
+    """Every recorded output has its baseline object; with `verify`, its bytes match the digest too."""
+    store = BaselineStore(root)
+    findings: list[Finding] = []
+    for rec in lock.analyses.values():
+        for out, o in sorted(rec.outputs.items()):
+            if verify:
+                try:
+                    store.get(o.sha256)
+                except BaselineError as exc:
+                    findings.append(Finding("output", out, "output.baseline", str(exc), o.sha256, None))
+            elif not store.path_for(o.sha256).is_file():
+                findings.append(Finding("output", out, "output.baseline",
+                                        f"baseline {o.sha256[:12]}… is missing from {store.folder.relative_to(root)}"
+                                        " (was .holotype/ committed?)", o.sha256, None))
+    return findings
+
+
 def check_project(root: Path, *, strict: bool = False, full: bool = False, python: str | None = None,
                   progress: HashProgress | None = None) -> Report:
     """Compare interpreter, platform, packages, data, code, seeds and analyses with the lock."""
@@ -62,6 +81,7 @@ def check_project(root: Path, *, strict: bool = False, full: bool = False, pytho
     findings += compare_file_sets("data", lock.data, now.data.records, now.data.problems)
     findings += compare_file_sets("code", lock.code, now.code.records, now.code.problems)
     findings += compare_seeds_and_analyses(config, lock)
+    findings += check_baselines(Path(root), lock, verify=full)
     for rel, problem in now.code_problems:
         findings.append(Finding("code", rel, "code.unparsable", problem))
     notes = (f"{len(lock.packages)} packages ({sum(p.used for p in lock.packages.values())} used), "
