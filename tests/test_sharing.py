@@ -230,3 +230,25 @@ def test_report_markdown_names_data_seeds_and_caution(survey: Path) -> None:
     text = run_cli("report", "-C", survey).out
     assert "`data/a.csv`" in text and "Project seed: 9" in text and "not a correct number" in text
     assert "ethics approvals" in text
+
+
+def test_locks_written_by_format_1_stay_readable(tmp_path: Path) -> None:
+    # fixtures/locks/format1.lock is what holotype 0.1.0 writes; diff and report must keep reading it
+    import shutil
+
+    from conftest import FIXTURES
+
+    old = FIXTURES / "locks" / "format1.lock"
+    lock = read_lock(old)
+    assert lock.packages["lake-tools"].origin.commit == "3f1c2a9b8d7e6f5a4b3c2d1e0f9a8b7c6d5e4f3a"
+    assert lock.history[0].reason == "recounted pond 2 visit 1"
+    newer = tmp_path / "newer.lock"
+    lock.packages["numpy"] = lock.packages["numpy"].__class__("numpy", "2.0.0", used=True)
+    newer.write_text(dump_lock(lock))
+    result = run_cli("diff", old, newer, "--format", "json")
+    assert result.code == 1 and "(upgraded)" in result.out
+    project = tmp_path / "p"
+    project.mkdir()
+    shutil.copy(old, project / "holotype.lock")
+    text = run_cli("report", "-C", project).out
+    assert "lake-tools" in text and "Project seed: 7310" in text and "black-ish-formatter" not in text

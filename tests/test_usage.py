@@ -64,3 +64,25 @@ def test_declared_dependencies_from_pyproject(tmp_path: Path) -> None:
     assert declared_requirements(tmp_path) == ["numpy>=2", "scipy"]
     write(tmp_path / "pyproject.toml", "[project\n")
     assert declared_requirements(tmp_path) == []
+
+
+def test_fixture_notebook_project_records_and_reports_the_broken_script(tmp_path: Path) -> None:
+    import shutil
+
+    from conftest import FIXTURES, run_cli
+
+    root = tmp_path / "plankton"
+    shutil.copytree(FIXTURES / "notebook-project", root)
+    from holotype.capture.walk import ProjectWalker
+
+    code = ProjectWalker(root).code_files({})
+    assert sorted(code) == ["analysis/draft.py", "analysis/explore.ipynb", "analysis/ratios.py"]
+    scan = scan_imports([(rel, Path(f.path)) for rel, f in code.items()])
+    assert {"csv", "numpy", "packaging", "collections"} <= scan.modules
+    assert "this_is_timed_not_parsed" not in scan.modules  # a %%time cell is not parsed
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    doc = json.loads(run_cli("check", "-C", root, "--format", "json").out)
+    [note] = [f for f in doc["findings"] if f["kind"] == "code.unparsable"]
+    assert note["subject"] == "analysis/draft.py" and note["severity"] == "info"
+    lock = (root / "holotype.lock").read_text()
+    assert "[packages.numpy]\nversion" in lock and "used = true" in lock.split("[packages.numpy]")[1][:80]
