@@ -26,6 +26,14 @@ def _json(result: object) -> dict:
     return json.loads(result.out)  # type: ignore[attr-defined]
 
 
+def record_then_install(project: tuple[Path, object], spec: str) -> Path:
+    """Record the project, then change one package in its environment."""
+    root, venv = project
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    venv.install(spec)  # type: ignore[attr-defined]
+    return root
+
+
 def test_record_then_check_clean(project: tuple[Path, object]) -> None:
     root, _ = project
     assert 'python = ".venv/bin/python"' in (root / "holotype.toml").read_text()
@@ -39,9 +47,7 @@ def test_record_then_check_clean(project: tuple[Path, object]) -> None:
 
 
 def test_used_package_drift_fails_with_expected_and_actual(project: tuple[Path, object]) -> None:
-    root, venv = project
-    assert run_cli("record", "--no-run", "-C", root).code == 0
-    venv.install("alpha==1.1")  # type: ignore[attr-defined]
+    root = record_then_install(project, "alpha==1.1")
     result = run_cli("check", "-C", root, "--format", "json")
     assert result.code == 1
     doc = _json(result)
@@ -52,18 +58,14 @@ def test_used_package_drift_fails_with_expected_and_actual(project: tuple[Path, 
 
 
 def test_requirement_of_a_used_package_is_used(project: tuple[Path, object]) -> None:
-    root, venv = project
-    assert run_cli("record", "--no-run", "-C", root).code == 0
-    venv.install("beta==2.0")  # type: ignore[attr-defined]
+    root = record_then_install(project, "beta==2.0")
     doc = _json(run_cli("check", "-C", root, "--format", "json"))
     [beta] = [f for f in doc["findings"] if f["subject"] == "beta"]
     assert beta["severity"] == "fail" and "downgraded" not in beta["message"]
 
 
 def test_unrelated_package_drift_warns_and_strict_fails(project: tuple[Path, object]) -> None:
-    root, venv = project
-    assert run_cli("record", "--no-run", "-C", root).code == 0
-    venv.install("gamma==2.0")  # type: ignore[attr-defined]
+    root = record_then_install(project, "gamma==2.0")
     result = run_cli("check", "-C", root, "--format", "json")
     assert result.code == 0
     [gamma] = [f for f in _json(result)["findings"] if f["subject"] == "gamma"]

@@ -63,22 +63,12 @@ class Session:
         if not self.quiet:
             self.err.print(message, markup=False)
 
-    def warn_config(self) -> None:
-        """Print the config's warnings (unknown keys, precedence) once, on stderr."""
-        from holotype.config import load_config
-        from holotype.errors import HolotypeError
-
-        try:
-            config = load_config(self.project, required=False)
-        except HolotypeError:
-            return  # the command itself reports it
-        for warning in config.warnings:
-            self.say(f"warning: {warning}")
-
     def emit(self, report: Report) -> NoReturn:
         """Render the report (and --output), then exit 0 or 1."""
         from holotype.render import formats
 
+        for warning in report.warnings:
+            self.say(f"warning: {warning}")
         if self.output is not None:
             fmt = self.fmt if self.fmt != "text" else _format_from_suffix(self.output)
             formats.write_report(self.output, report, fmt)
@@ -230,7 +220,6 @@ def record(project: Path, no_run: bool, python: str | None, fmt: str, output: Pa
         from holotype.commands.record import record_project
         from holotype.render.progress import AnalysisPanel, HashBar
 
-        session.warn_config()
         panel = AnalysisPanel(session.err) if session.interactive else None
         try:
             outcome = record_project(project, run=not no_run, python=python,
@@ -257,7 +246,6 @@ def check(project: Path, full: bool, strict: bool, python: str | None, fmt: str,
         from holotype.commands.check import check_project
         from holotype.render.progress import HashBar
 
-        session.warn_config()
         report = check_project(project, strict=strict, full=full, python=python,
                                progress=HashBar(session.err) if session.interactive else None)
         session.emit(report)
@@ -279,7 +267,6 @@ def rerun(project: Path, names: tuple[str, ...], twice: bool, dry_run: bool, pyt
         from holotype.commands.rerun import rerun_project
         from holotype.render.progress import AnalysisPanel
 
-        session.warn_config()
         panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
         try:
             report = rerun_project(project, list(names), twice=twice, python=python, dry_run=dry_run,

@@ -68,10 +68,11 @@ def sha256_file(path: str | os.PathLike[str], counter: _Counter | None = None) -
     return h.hexdigest()
 
 
-def _hash_stable(path: str, counter: _Counter) -> tuple[str, os.stat_result]:
+def _hash_stable(path: str, counter: _Counter, before: os.stat_result) -> tuple[str, os.stat_result]:
     """Hash, then check the file did not change meanwhile; retry once, then give up loudly."""
-    for _attempt in range(2):
-        before = os.stat(path)
+    for attempt in range(2):
+        if attempt:
+            before = os.stat(path)
         digest = sha256_file(path, counter)
         after = os.stat(path)
         if (before.st_size, before.st_mtime_ns) == (after.st_size, after.st_mtime_ns):
@@ -86,7 +87,7 @@ class _Unstable(Exception):
 Outcome = tuple[str, os.stat_result] | OSError | _Unstable
 
 
-def _hash_all(items: list[ProjectFile], counter: _Counter, workers: int | None,
+def _hash_all(items: list[tuple[ProjectFile, os.stat_result]], counter: _Counter, workers: int | None,
               progress: HashProgress | None) -> list[Outcome]:
     """Hash on a few threads that take the next file from a shared queue (linear in the file count)."""
     outcomes: list[Outcome | None] = [None] * len(items)
@@ -101,7 +102,8 @@ def _hash_all(items: list[ProjectFile], counter: _Counter, workers: int | None,
             except IndexError:
                 return
             try:
-                outcomes[index] = _hash_stable(items[index].path, counter)
+                item, st = items[index]
+                outcomes[index] = _hash_stable(item.path, counter, st)
             except (OSError, _Unstable) as exc:
                 outcomes[index] = exc
             with lock:
@@ -161,7 +163,7 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
     if pending:
         if progress is not None:
             progress.begin(len(pending), total)
-        outcomes = _hash_all([item for item, _ in pending], counter, workers, progress)
+        outcomes = _hash_all(pending, counter, workers, progress)
         for item, outcome in zip((item for item, _ in pending), outcomes):
             if isinstance(outcome, tuple):
                 digest, st = outcome

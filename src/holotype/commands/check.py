@@ -87,4 +87,5 @@ def check_project(root: Path, *, strict: bool = False, full: bool = False, pytho
     notes = (f"{len(lock.packages)} packages ({sum(p.used for p in lock.packages.values())} used), "
              f"{len(lock.data)} data files, {len(lock.code)} code files checked against {LOCK_NAME} "
              f"recorded {lock.recorded}",)
-    return Report("check", apply_policy(findings, config.policy, strict=strict), notes=notes)
+    return Report("check", apply_policy(findings, config.policy, strict=strict), notes=notes,
+                  warnings=config.warnings)

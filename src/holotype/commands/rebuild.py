@@ -60,8 +60,7 @@ def interpreter_candidates(minor: str) -> list[str]:
                     f"{home}/.local/share/uv/python/cpython-{minor}*/bin/python{minor}",
                     f"/Library/Frameworks/Python.framework/Versions/{minor}/bin/python{minor}"):
         found += sorted(glob.glob(pattern))
-    seen: set[str] = set()
-    return [p for p in found if not (p in seen or seen.add(p))]  # type: ignore[func-returns-value]
+    return list(dict.fromkeys(found))
 
 
 def find_interpreter(lock: Lock) -> str:

@@ -118,7 +118,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return RecordOutcome(Report("record", report_findings,
-                                        notes=("nothing written: the lock and baselines are unchanged",)), False)
+                                        notes=("nothing written: the lock and baselines are unchanged",),
+                                        warnings=config.warnings), False)
         if run:
             for _out, data in pending:
                 store.put(data)
@@ -144,4 +145,4 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
     notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
                  f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
                  f"{len(lock.analyses)} analyses")
-    return RecordOutcome(Report("record", report_findings, notes=tuple(notes)), True)
+    return RecordOutcome(Report("record", report_findings, notes=tuple(notes), warnings=config.warnings), True)

@@ -141,7 +141,8 @@ def rerun_project(root: Path, names: list[str] | None = None, *, twice: bool = F
     project_seed, findings = effective_seed(config, lock)
     if dry_run:
         return Report("rerun", apply_policy(findings + plan(config, interpreter, analyses, project_seed),
-                                            config.policy), notes=("dry run: nothing was run",))
+                                            config.policy), notes=("dry run: nothing was run",),
+                      warnings=config.warnings)
     store = BaselineStore(root)
     for result in run_each(config, interpreter, analyses, project_seed, progress):
         analysis = result.analysis
@@ -166,7 +167,7 @@ def rerun_project(root: Path, names: list[str] | None = None, *, twice: bool = F
                                         f"second run: {second.failure_text()}"))
             else:
                 findings += compare_runs(result, second)
-    report = Report("rerun", apply_policy(findings, config.policy))
+    report = Report("rerun", apply_policy(findings, config.policy), warnings=config.warnings)
     save_last_rerun(root, report, [a.name for a in analyses])
     return report
 

@@ -84,6 +84,7 @@ class Report:
     findings: tuple[Finding, ...]
     title: str = ""
     notes: tuple[str, ...] = ()
+    warnings: tuple[str, ...] = ()  # about the config itself (unknown keys, precedence): printed on stderr
 
     @property
     def ok(self) -> bool:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import io
 from pathlib import Path
 
 from rich.console import Console
@@ -24,7 +25,7 @@ def render(report: Report, fmt: str) -> str:
         from holotype.render.markdown import render_markdown
 
         return render_markdown(report)
-    console = Console(record=True, width=120, no_color=True, file=open("/dev/null", "w"))
+    console = Console(record=True, width=120, no_color=True, file=io.StringIO())
     print_text(console, report)
     return console.export_text()
 
