@@ -1,4 +1,4 @@
-"""Analyses, seeds and baselines: record runs them, rerun proves they still reproduce."""
+"""Analyses, seeds and baselines: record runs them, replay proves they still reproduce."""
 
 from __future__ import annotations
 
@@ -14,8 +14,8 @@ import pytest
 
 from conftest import run_cli, write
 from holotype import seeds
-from holotype.baselines import BaselineStore
 from holotype.lockfile import read_lock
+from holotype.store import BaselineStore
 
 SCRIPT = """\
 import csv, json, os, sys
@@ -47,7 +47,7 @@ def project(tmp_path: Path) -> Path:
         threads = 1
 
         [analyses.stats]
-        run = "python analysis/stats.py"
+        command = "python analysis/stats.py"
         outputs = ["results/summary.csv", "results/test.json"]
         inputs = ["data/lakes.csv"]
         timeout = 60
@@ -57,8 +57,8 @@ def project(tmp_path: Path) -> Path:
     return root
 
 
-def rerun(root: Path, *args: str) -> tuple[int, list[dict]]:
-    result = run_cli("rerun", "-C", root, "--format", "json", *args)
+def replay(root: Path, *args: str) -> tuple[int, list[dict]]:
+    result = run_cli("replay", "-C", root, "--format", "json", *args)
     assert result.code in (0, 1), result.err
     return result.code, json.loads(result.out)["findings"]
 
@@ -100,7 +100,7 @@ def test_analysis_process_sees_its_seeds(project: Path) -> None:
     assert written["seed"] == seeds.derive_seed(20261201, "stats")
 
 
-# ----------------------------------------------------------------------------- record and rerun
+# ----------------------------------------------------------------------------- record and replay
 
 
 def test_record_stores_compressed_verified_baselines(project: Path) -> None:
@@ -112,8 +112,8 @@ def test_record_stores_compressed_verified_baselines(project: Path) -> None:
     assert (project / ".holotype" / "logs" / "stats.log").read_text().count("done") == 1
 
 
-def test_rerun_clean(project: Path) -> None:
-    code, findings = rerun(project)
+def test_replay_clean(project: Path) -> None:
+    code, findings = replay(project)
     assert code == 0
     assert [f["message"] for f in findings if f["area"] == "output"] == ["identical bytes"] * 2
 
@@ -121,11 +121,11 @@ def test_rerun_clean(project: Path) -> None:
 def test_change_inside_tolerance_passes_outside_fails_with_figures(project: Path,
                                                                   monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setenv("NOISE", "1e-12")
-    code, findings = rerun(project)
+    code, findings = replay(project)
     summary = [f for f in findings if f["subject"] == "results/summary.csv"][0]
     assert code == 0 and summary["kind"] == "output.match" and summary["max_rel_err"] > 0
     monkeypatch.setenv("NOISE", "1e-3")
-    code, findings = rerun(project)
+    code, findings = replay(project)
     summary = [f for f in findings if f["subject"] == "results/summary.csv"][0]
     assert code == 1 and summary["severity"] == "fail"
     assert summary["worst"] == "row 1, column value" and summary["mismatches"] == 1
@@ -140,7 +140,7 @@ def test_twice_flags_a_script_that_draws_from_urandom(project: Path) -> None:
         open("results/summary.csv", "w").write("stat,value\\nmean,%r\\n" % (int.from_bytes(os.urandom(4), "big") / 2**32))
         json.dump({}, open("results/test.json", "w"))
         """)
-    code, findings = rerun(project, "--twice")
+    code, findings = replay(project, "--twice")
     nondet = [f for f in findings if f["kind"] == "analysis.nondeterministic"]
     assert code == 1 and len(nondet) == 1
     assert "nondeterministic" in nondet[0]["message"] and "results/summary.csv" in nondet[0]["message"]
@@ -149,20 +149,20 @@ def test_twice_flags_a_script_that_draws_from_urandom(project: Path) -> None:
 
 def test_crash_and_timeout_are_findings_with_the_error_text(project: Path) -> None:
     write(project / "analysis" / "stats.py", "import sys\nprint('reading lakes')\nsys.exit('depth column is empty')\n")
-    code, findings = rerun(project)
+    code, findings = replay(project)
     [failed] = [f for f in findings if f["kind"] == "analysis.failed"]
     assert code == 1 and "exited with code 1" in failed["message"] and "depth column is empty" in failed["message"]
     write(project / "analysis" / "stats.py", "import time\nprint('thinking', flush=True)\ntime.sleep(30)\n")
     text = (project / "holotype.toml").read_text().replace("timeout = 60", "timeout = 0.5")
     (project / "holotype.toml").write_text(text)
-    code, findings = rerun(project)
+    code, findings = replay(project)
     [failed] = [f for f in findings if f["kind"] == "analysis.failed"]
     assert code == 1 and "timed out after 0.5s" in failed["message"] and "thinking" in failed["message"]
 
 
 def test_missing_output_is_a_finding(project: Path) -> None:
     write(project / "analysis" / "stats.py", "print('forgot to write')\n")
-    code, findings = rerun(project)
+    code, findings = replay(project)
     [failed] = [f for f in findings if f["kind"] == "analysis.failed"]
     assert code == 1 and "did not write results/summary.csv" in failed["message"]
 
@@ -175,17 +175,17 @@ def test_failed_record_writes_nothing_new(project: Path) -> None:
     assert (project / "holotype.lock").read_bytes() == before
 
 
-def test_accept_requires_and_logs_a_reason(project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+def test_adopt_requires_and_logs_a_reason(project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     monkeypatch.setenv("NOISE", "1e-3")
-    assert rerun(project)[0] == 1
-    refused = run_cli("accept", "-C", project)
+    assert replay(project)[0] == 1
+    refused = run_cli("adopt", "-C", project)
     assert refused.code == 2 and "--reason" in refused.err
-    assert run_cli("accept", "stats", "-C", project, "--reason", "corrected depth units").code == 0
+    assert run_cli("adopt", "stats", "-C", project, "--reason", "corrected depth units").code == 0
     lock = read_lock(project / "holotype.lock")
     [entry] = lock.history
     assert entry.reason == "corrected depth units" and entry.analyses == ("stats",) and entry.who
     assert [c[0] for c in entry.changes] == ["results/summary.csv"]
-    assert rerun(project)[0] == 0  # the new numbers are the baseline now
+    assert replay(project)[0] == 0  # the new numbers are the baseline now
 
 
 def test_corrupted_baseline_is_detected(project: Path) -> None:
@@ -193,21 +193,21 @@ def test_corrupted_baseline_is_detected(project: Path) -> None:
     digest = lock.analyses["stats"].outputs["results/summary.csv"].sha256
     path = BaselineStore(project).path_for(digest)
     path.write_bytes(gzip.compress(b"stat,value\nmean,0\n"))
-    code, findings = rerun(project)
+    code, findings = replay(project)
     [bad] = [f for f in findings if f["kind"] == "output.baseline"]
     assert code == 1 and "does not match its SHA-256" in bad["message"]
     path.write_bytes(b"not gzip at all")
-    code, findings = rerun(project)
+    code, findings = replay(project)
     assert code == 1 and "does not decompress" in [f for f in findings if f["kind"] == "output.baseline"][0]["message"]
 
 
 def test_unknown_analysis_name_is_exit_2(project: Path) -> None:
-    result = run_cli("rerun", "nope", "-C", project)
+    result = run_cli("replay", "nope", "-C", project)
     assert result.code == 2 and "no analysis named 'nope'" in result.err
 
 
 def test_dry_run_shows_command_and_environment(project: Path) -> None:
-    result = run_cli("rerun", "--dry-run", "-C", project, "--format", "json")
+    result = run_cli("replay", "--dry-run", "-C", project, "--format", "json")
     [plan] = json.loads(result.out)["findings"]
     assert "analysis/stats.py" in plan["message"] and f"HOLOTYPE_SEED={seeds.derive_seed(20261201, 'stats')}" in \
         plan["message"] and "OMP_NUM_THREADS=1" in plan["message"]
@@ -216,7 +216,7 @@ def test_dry_run_shows_command_and_environment(project: Path) -> None:
 def test_changed_seed_moves_seeded_outputs(project: Path) -> None:
     text = (project / "holotype.toml").read_text().replace("seed = 20261201", "seed = 5")
     (project / "holotype.toml").write_text(text)
-    code, findings = rerun(project)
+    code, findings = replay(project)
     kinds = {f["kind"] for f in findings if f["severity"] == "fail"}
     assert code == 1 and {"seed.changed", "output.mismatch"} <= kinds
 
@@ -256,11 +256,11 @@ def test_seed_globals_makes_unseeded_global_generators_repeatable(tmp_path: Path
         seed_globals = {str(seed_globals).lower()}
 
         [analyses.boot]
-        run = "python boot.py"
+        command = "python boot.py"
         outputs = ["results/boot.csv"]
         """)
     assert run_cli("record", "-C", root).code == 0
-    code, findings = rerun(root, "--twice")
+    code, findings = replay(root, "--twice")
     nondet = [f for f in findings if f["kind"] == "analysis.nondeterministic"]
     if seed_globals:
         assert code == 0 and not nondet
@@ -272,7 +272,7 @@ def test_seed_globals_chains_an_existing_sitecustomize(tmp_path: Path) -> None:
     import os
     import subprocess
 
-    from holotype.capture.runs import seeding_folder
+    from holotype.run.plan import seeding_folder
 
     write(tmp_path / "site" / "sitecustomize.py", "import builtins\nbuiltins.LAB_SITE = 'loaded'\n")
     env = {**os.environ, "HOLOTYPE_SEED": "42",

@@ -11,8 +11,8 @@ from pathlib import Path
 import pytest
 
 from conftest import run_cli, write
-from holotype.baselines import BaselineStore
 from holotype.lockfile import read_lock
+from holotype.store import BaselineStore
 
 CORPUS = Path(__file__).resolve().parent / "bad_inputs"
 EXPECTED = tomllib.loads((CORPUS / "expected.toml").read_text(encoding="utf-8"))
@@ -45,7 +45,7 @@ def test_config_corpus(tmp_path: Path, name: str) -> None:
     shutil.copy(CORPUS / "config" / name, tmp_path / "holotype.toml")
     command = want.get("command", "record")
     args = [command, "-C", tmp_path] + (["--no-run"] if command == "record" else [])
-    if command == "rerun":
+    if command == "replay":
         (tmp_path / "holotype.lock").write_text("")  # the config is judged before the lock is read
     result = run_cli(*args)
     assert result.code == want["code"], result.err + result.out
@@ -86,7 +86,7 @@ def recorded(tmp_path_factory: pytest.TempPathFactory) -> Path:
     root = tmp_path_factory.mktemp("baseline-corpus")
     write(root / "stats.py", "import os\nos.makedirs('results', exist_ok=True)\n"
                              "open('results/s.csv', 'w').write('stat,value\\nmean,1.0\\n')\n")
-    write(root / "holotype.toml", f'python = "{sys.executable}"\nseed = 2\n\n[analyses.s]\nrun = "python stats.py"\n'
+    write(root / "holotype.toml", f'python = "{sys.executable}"\nseed = 2\n\n[analyses.s]\ncommand = "python stats.py"\n'
                                   'outputs = ["results/s.csv"]\n')
     assert run_cli("record", "-C", root).code == 0
     return root
@@ -100,7 +100,7 @@ def test_baseline_corpus(recorded: Path, name: str) -> None:
     original = target.read_bytes()
     try:
         target.write_bytes((CORPUS / "baselines" / name).read_bytes())
-        result = run_cli("rerun", "-C", recorded, "--format", "json")
+        result = run_cli("replay", "-C", recorded, "--format", "json")
     finally:
         target.write_bytes(original)
     assert result.code == want["code"]

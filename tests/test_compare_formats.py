@@ -96,8 +96,8 @@ def test_tsv_quoted_fields_and_bom(tmp_path: Path) -> None:
 
 def test_csv_parser_is_correctly_rounded() -> None:
     # Python's float() is correctly rounded (IEEE 754 round-to-nearest); the table reader must agree bit for bit.
+    from holotype.compare.formats.table import _chunks
     from holotype.compare.source import Source
-    from holotype.compare.tables import _chunks
 
     rng = np.random.default_rng(11)
     x = rng.standard_normal(20_000) * 10.0 ** rng.integers(-300, 300, 20_000)

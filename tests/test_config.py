@@ -31,7 +31,7 @@ def test_full_example_from_the_interface_loads(tmp_path: Path) -> None:
         rtol = 1e-6
 
         [analyses.summary]
-        run = "python analysis/summary.py"
+        command = "python analysis/summary.py"
         outputs = ["results/summary.csv", "results/tests.json"]
         inputs = ["data/survey.csv"]
         timeout = 600
@@ -68,9 +68,9 @@ def test_unknown_key_warns_with_a_suggestion(tmp_path: Path) -> None:
     ('data = ["../outside"]\n', "leaves the project"),
     ('data = ["/etc/passwd"]\n', "leaves the project"),
     ('data = ["data\\\\x.csv"]\n', "backslashes"),
-    ("[analyses.a]\nrun = \"python a.py\"\noutputs = [\"o.csv\"]\ntimeout = 0\n", "timeout"),
-    ("[analyses.a]\nrun = \"python a.py\"\noutputs = []\n", "at least one output"),
-    ("[analyses.a]\noutputs = [\"o.csv\"]\n", ".run' should be"),
+    ("[analyses.a]\ncommand = \"python a.py\"\noutputs = [\"o.csv\"]\ntimeout = 0\n", "timeout"),
+    ("[analyses.a]\ncommand = \"python a.py\"\noutputs = []\n", "at least one output"),
+    ("[analyses.a]\noutputs = [\"o.csv\"]\n", ".command' should be"),
     ('[policy]\n"package.unrelatd" = "fail"\n', "did you mean 'package.unrelated'"),
     ('[[rules]]\nrtol = 1e-3\n', "match"),
 ])

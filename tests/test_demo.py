@@ -121,7 +121,7 @@ def test_demo_end_to_end_then_the_folder_is_a_normal_project(tmp_path: Path, mon
         assert words in result.out
     check = run_cli("check", "-C", folder, "--format", "json")
     assert check.code == 0 and json.loads(check.out)["ok"] is True
-    rerun = run_cli("rerun", "-C", folder, "--format", "json")
-    assert rerun.code == 0, rerun.out
+    replay = run_cli("replay", "-C", folder, "--format", "json")
+    assert replay.code == 0, replay.out
     again = run_cli("demo", folder)
     assert again.code == 2 and "not empty" in again.err

@@ -15,11 +15,11 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from holotype.compare.outputs import compare_sources
-from holotype.compare.source import Source, UnreadableOutput
-from holotype.compare.tolerance import RuleBook
+from holotype.compare.source import Source
 from holotype.config import TOP_KEYS, config_from_dict
-from holotype.errors import ConfigError, LockfileError
+from holotype.errors import ConfigError, LockfileError, UnreadableOutput
 from holotype.lockfile import dump_lock, parse_lock
+from holotype.tolerance import RuleBook
 from test_lockfile import sample_lock
 
 pytestmark = pytest.mark.fuzz

@@ -16,7 +16,7 @@ from holotype.records import (
     FileRecord,
     HistoryEntry,
     Interpreter,
-    Lock,
+    LockContents,
     Origin,
     OutputRecord,
     PackageRecord,
@@ -24,8 +24,8 @@ from holotype.records import (
 )
 
 
-def sample_lock() -> Lock:
-    return Lock(
+def sample_lock() -> LockContents:
+    return LockContents(
         interpreter=Interpreter("cpython", "3.11.7", "GCC 12.2.0", "cpython-311-x86_64-linux-gnu", ".venv/bin/python"),
         platform=PlatformInfo("Linux", "6.1.0", "x86_64", "glibc", "2.36"),
         packages={
@@ -61,13 +61,13 @@ def test_same_input_same_bytes_and_sorted_tables() -> None:
     assert text.index("[packages.alpha]") < text.index("[packages.zeta]")
     assert text.index('"data/a b é.csv"') < text.index('"data/b.csv"')
     # parses as plain TOML (the TOML 1.0 spec's reader in the standard library)
-    assert tomllib.loads(text)["format"] == 1
+    assert tomllib.loads(text)["format"] == 2
 
 
 def test_refuses_newer_format(tmp_path: Path) -> None:
     path = tmp_path / "holotype.lock"
-    path.write_text(dump_lock(sample_lock()).replace("format = 1", "format = 2"))
-    with pytest.raises(LockfileError, match="newer holotype .format 2."):
+    path.write_text(dump_lock(sample_lock()).replace("format = 2", "format = 3"))
+    with pytest.raises(LockfileError, match="newer holotype .format 3."):
         read_lock(path)
 
 

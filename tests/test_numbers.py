@@ -9,7 +9,7 @@ from hypothesis import given, settings
 from hypothesis import strategies as st
 
 from holotype.compare.numbers import MAX_LRE, judge, log_relative_error, ulp_distance
-from holotype.compare.tolerance import Tolerance
+from holotype.tolerance import Tolerance
 
 finite = st.floats(allow_nan=False, allow_infinity=False, width=64)
 small_tol = st.floats(min_value=0, max_value=1, allow_nan=False)
@@ -104,7 +104,7 @@ def test_exact_when_no_criterion_is_set() -> None:
 
 
 def test_defaults_pass_last_bit_noise_and_catch_real_change() -> None:
-    from holotype.compare.tolerance import DEFAULT_TOLERANCE
+    from holotype.tolerance import DEFAULT_TOLERANCE
 
     rng = np.random.default_rng(7)
     x = rng.standard_normal(10_000) * 1e3

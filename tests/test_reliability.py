@@ -42,7 +42,7 @@ def make_project(root: Path) -> Path:
         write(root / "data" / f"extra{i}.csv", f"x\n{i}\n" * 500)
     write(root / "analysis.py", ANALYSIS)
     write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 4\n\n'
-                                  '[analyses.big]\nrun = "python analysis.py"\noutputs = ["results/big.csv"]\n')
+                                  '[analyses.big]\ncommand = "python analysis.py"\noutputs = ["results/big.csv"]\n')
     return root
 
 
@@ -107,11 +107,11 @@ def test_second_writer_waits_then_gives_a_clear_message(tmp_path: Path) -> None:
     assert err.decode().count("\n") == 1 and "another holotype command is still writing" in err.decode()
 
 
-def test_two_records_and_an_accept_at_once_do_not_interleave(tmp_path: Path) -> None:
+def test_two_records_and_an_adopt_at_once_do_not_interleave(tmp_path: Path) -> None:
     root = make_project(tmp_path / "p")
     assert run_cli("record", "-C", root).code == 0
     procs = [holotype("record", "-C", str(root), "--quiet"), holotype("record", "-C", str(root), "--quiet"),
-             holotype("accept", "-C", str(root), "--reason", "concurrency trial", "--quiet")]
+             holotype("adopt", "-C", str(root), "--reason", "concurrency trial", "--quiet")]
     codes = [p.wait(timeout=120) for p in procs]
     assert codes == [0, 0, 0], [p.stderr.read() for p in procs if p.stderr]  # type: ignore[union-attr]
     lock = read_lock(root / "holotype.lock")
@@ -158,14 +158,14 @@ def test_no_secret_reaches_the_lock_or_a_report(tmp_path: Path, wheelhouse: Path
     monkeypatch.setenv("LAB_API_TOKEN", "ENV-VALUE-SECRET")
     write(root / "fit.py", "import alpha, os\nos.makedirs('out', exist_ok=True)\nopen('out/r.csv','w').write('v\\n1\\n')\n")
     write(root / "holotype.toml", 'python = ".venv/bin/python"\nseed = 5\n\n'
-                                  '[analyses.fit]\nrun = "python fit.py"\noutputs = ["out/r.csv"]\n')
+                                  '[analyses.fit]\ncommand = "python fit.py"\noutputs = ["out/r.csv"]\n')
     assert run_cli("record", "-C", root).code == 0
-    assert run_cli("rerun", "-C", root, "--format", "json", "--output", root / "rerun.json").code == 0
+    assert run_cli("replay", "-C", root, "--format", "json", "--output", root / "replay.json").code == 0
     assert run_cli("report", "-C", root, "--output", root / "methods.md").code == 0
     assert run_cli("report", "-C", root, "--format", "html", "--output", root / "methods.html").code == 0
-    assert run_cli("export", "-C", root, "--output", root / "requirements.txt").code == 0
+    assert run_cli("pins", "-C", root, "--output", root / "requirements.txt").code == 0
     assert run_cli("check", "-C", root, "--format", "junit", "--output", root / "check.xml").code in (0, 1)
-    written = [root / "holotype.lock", root / "rerun.json", root / "methods.md", root / "methods.html",
+    written = [root / "holotype.lock", root / "replay.json", root / "methods.md", root / "methods.html",
                root / "check.xml", root / "holotype.toml", *(root / ".holotype").rglob("*")]
     secrets = ["S3CRET-PASSWORD", "TOKEN-IN-QUERY", "PIP-INDEX-SECRET", "PIP-ENV-SECRET", "ENV-VALUE-SECRET",
                str(home)]

@@ -1,4 +1,4 @@
-"""CI gate and sharing: JUnit and Markdown, lockfile diff, export, rebuild and the provenance report."""
+"""CI gate and sharing: JUnit and Markdown, lockfile diff, pins, recreate and the provenance report."""
 
 from __future__ import annotations
 
@@ -27,7 +27,7 @@ def survey(tmp_path: Path) -> Path:
     write(root / "run.py", "import os, json\nos.makedirs('out', exist_ok=True)\n"
                            "json.dump({'mean': 1.5 * (1 + float(os.environ.get('SHIFT', '0')))}, open('out/r.json', 'w'))\n")
     write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 9\n\n'
-                                  '[analyses.mean]\nrun = "python run.py"\noutputs = ["out/r.json"]\n')
+                                  '[analyses.mean]\ncommand = "python run.py"\noutputs = ["out/r.json"]\n')
     assert run_cli("record", "-C", root).code == 0
     return root
 
@@ -39,8 +39,8 @@ def test_junit_failures_equal_json_fail_findings(survey: Path, monkeypatch: pyte
     (survey / "data" / "a.csv").write_text("x\n1\n3\n")
     write(survey / "data" / "new.csv", "y\n")
     monkeypatch.setenv("SHIFT", "0.01")
-    doc = json.loads(run_cli("rerun", "-C", survey, "--format", "json").out)
-    xml_text = run_cli("rerun", "-C", survey, "--format", "junit").out
+    doc = json.loads(run_cli("replay", "-C", survey, "--format", "json").out)
+    xml_text = run_cli("replay", "-C", survey, "--format", "junit").out
     root = ET.fromstring(xml_text)  # parsed with the standard library's XML reader
     fails = sum(1 for f in doc["findings"] if f["severity"] == "fail")
     assert fails >= 1
@@ -64,7 +64,7 @@ def test_junit_and_markdown_escape_user_strings() -> None:
 def test_output_file_is_written_while_the_terminal_gets_the_table(survey: Path, tmp_path: Path) -> None:
     target = tmp_path / "findings.xml"
     result = run_cli("check", "-C", survey, "--format", "junit", "--output", target)
-    assert result.code == 0 and "ok:" in result.out and "<testsuites" not in result.out
+    assert result.code == 0 and "ok · 0 fail" in result.out and "<testsuites" not in result.out
     assert ET.parse(target).getroot().tag == "testsuites"
 
 
@@ -78,7 +78,7 @@ def test_diff_reports_every_kind_of_change(survey: Path, tmp_path: Path, monkeyp
 
     a = read_lock(survey / "holotype.lock")
     b = read_lock(survey / "holotype.lock")
-    some = sorted(a.packages)[:4]
+    some = sorted(n for n, p in a.packages.items() if p.origin.kind == "index")[:4]
     a.packages["zz-old"] = PackageRecord("zz-old", "1.0", used=True)
     b.packages["zz-new"] = PackageRecord("zz-new", "2.0")
     b.packages[some[0]] = replace(b.packages[some[0]], version="999.0")
@@ -124,7 +124,7 @@ def test_diff_rev_in_a_git_repository(survey: Path) -> None:
     assert bad.code == 2 and "nosuchrev" in bad.err
 
 
-# ----------------------------------------------------------------------------- export and rebuild
+# ----------------------------------------------------------------------------- pins and recreate
 
 
 @pytest.fixture
@@ -138,11 +138,11 @@ def venv_project(tmp_path: Path, wheelhouse: Path) -> tuple[Path, Path]:
     return root, wheelhouse
 
 
-def test_export_requirements_parse_back_with_packaging(venv_project: tuple[Path, Path]) -> None:
+def test_pins_requirements_parse_back_with_packaging(venv_project: tuple[Path, Path]) -> None:
     from packaging.requirements import Requirement
 
     root, _ = venv_project
-    text = run_cli("export", "--format", "requirements", "-C", root).out
+    text = run_cli("pins", "--to", "requirements", "-C", root).out
     pins = {}
     for line in text.splitlines():
         if line and not line.startswith("#"):
@@ -152,20 +152,20 @@ def test_export_requirements_parse_back_with_packaging(venv_project: tuple[Path,
     assert pins["alpha"] == ("==", "1.0") and pins["beta"] == ("==", "1.0") and pins["gamma"] == ("==", "1.0")
 
 
-def test_export_pylock_is_accepted_by_the_pep751_reader(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
+def test_pins_pylock_is_accepted_by_the_pep751_reader(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
     import tomllib
 
     from packaging.pylock import Pylock
 
     root, wheels = venv_project
-    missing = run_cli("export", "--format", "pylock", "-C", root)
+    missing = run_cli("pins", "--to", "pylock", "-C", root)
     assert missing.code == 2 and "--find-links" in missing.err
     # a wheelhouse holding every locked file: ours plus pip's and setuptools' own wheels from ensurepip
     import ensurepip
 
     bundled = Path(ensurepip.__file__).parent / "_bundled"
     target = tmp_path / "pylock.toml"
-    result = run_cli("export", "--format", "pylock", "-C", root, "--find-links", wheels, "--find-links", bundled,
+    result = run_cli("pins", "--to", "pylock", "-C", root, "--find-links", wheels, "--find-links", bundled,
                      "--output", target)
     assert result.code == 0, result.err
     lock = Pylock.from_dict(tomllib.loads(target.read_text()))  # PEP 751's reference reader
@@ -174,26 +174,26 @@ def test_export_pylock_is_accepted_by_the_pep751_reader(venv_project: tuple[Path
 
 
 @pytest.mark.slow
-def test_rebuild_offline_then_checks_clean(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
+def test_recreate_offline_then_checks_clean(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
     root, wheels = venv_project
     target = tmp_path / "rebuilt"
-    result = run_cli("rebuild", target, "-C", root, "--find-links", wheels, "--no-index", "--format", "json")
+    result = run_cli("recreate", target, "-C", root, "--find-links", wheels, "--no-index", "--format", "json")
     assert result.code == 0, result.out + result.err
     doc = json.loads(result.out)
     assert doc["ok"] and not [f for f in doc["findings"] if f["area"] == "package"]
     out = subprocess.run([str(target / "bin" / "python"), "-c", "import alpha, beta; print(alpha.VERSION)"],
                          capture_output=True, text=True)
     assert out.stdout.strip() == "1.0"
-    again = run_cli("rebuild", target, "-C", root)
+    again = run_cli("recreate", target, "-C", root)
     assert again.code == 2 and "new or empty" in again.err
 
 
-def test_rebuild_refuses_when_no_interpreter_matches(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
+def test_recreate_refuses_when_no_interpreter_matches(venv_project: tuple[Path, Path], tmp_path: Path) -> None:
     root, _ = venv_project
     text = (root / "holotype.lock").read_text()
     version = read_lock(root / "holotype.lock").interpreter.version
     (root / "holotype.lock").write_text(text.replace(f'version = "{version}"', 'version = "3.7.99"', 1))
-    result = run_cli("rebuild", tmp_path / "x", "-C", root)
+    result = run_cli("recreate", tmp_path / "x", "-C", root)
     assert result.code == 2 and "no Python 3.7.99 found" in result.err
 
 
@@ -214,7 +214,7 @@ class _Collect(HTMLParser):
 
 
 def test_report_html_has_svg_and_package_table(survey: Path, tmp_path: Path) -> None:
-    assert run_cli("rerun", "-C", survey).code == 0
+    assert run_cli("replay", "-C", survey).code == 0
     target = tmp_path / "methods.html"
     assert run_cli("report", "--format", "html", "--output", target, "-C", survey).code == 0
     parser = _Collect()

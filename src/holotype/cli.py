@@ -1,154 +1,35 @@
 """The command line: parse options, call one function, render, choose the exit code. Nothing else.
 
-Built on click. Heavy modules (NumPy, packaging, rich tables, the commands) are imported inside
-the commands so that `holotype --help` stays fast.
+Built on click. The shared options live on the group and on every command (so `-C DIR` works
+before or after the command name) and meet in one `Session` on `ctx.obj`. Findings commands are
+declared with `@findings_command`, which builds the session, calls the command body and renders
+the report it returns. Errors have one path: `HolotypeError` is a `click.ClickException` (exit 2,
+one line), and `HolotypeGroup.main` turns usage errors and anything unexpected into one line too.
+Heavy modules (NumPy, rich, the commands) are imported inside the bodies, so `--help` stays fast.
 """
 
 from __future__ import annotations
 
+import functools
 import os
 import sys
 from collections.abc import Callable
 from pathlib import Path
-from typing import TYPE_CHECKING, Any, NoReturn, TypeVar
+from typing import TYPE_CHECKING, Any
 
 import click
 
 from holotype import __version__
+from holotype.render import APPENDIX, FINDINGS
 
 if TYPE_CHECKING:
     from rich.console import Console
 
     from holotype.findings import Report
 
-F = TypeVar("F", bound=Callable[..., Any])
-FINDING_FORMATS = ("text", "json", "junit", "markdown")
 CONTEXT = {"help_option_names": ["--help", "-h"], "max_content_width": 100}
-
-
-class Session:
-    """The options every command shares, and the consoles they imply."""
-
-    def __init__(self, project: Path, fmt: str = "text", output: Path | None = None, quiet: bool = False,
-                 no_color: bool = False) -> None:
-        self.project = project
-        self.fmt = fmt
-        self.output = output
-        self.quiet = quiet
-        self.no_color = no_color or bool(os.environ.get("NO_COLOR"))
-        self._console: Console | None = None
-        self._err: Console | None = None
-
-    @property
-    def console(self) -> Console:
-        if self._console is None:
-            from rich.console import Console
-
-            self._console = Console(file=sys.stdout, no_color=self.no_color, highlight=False)
-        return self._console
-
-    @property
-    def err(self) -> Console:
-        if self._err is None:
-            from rich.console import Console
-
-            self._err = Console(file=sys.stderr, no_color=self.no_color, highlight=False)
-        return self._err
-
-    @property
-    def interactive(self) -> bool:
-        return not self.quiet and self.fmt == "text" and self.err.is_terminal
-
-    def say(self, message: str) -> None:
-        if not self.quiet:
-            self.err.print(message, markup=False)
-
-    def emit(self, report: Report) -> NoReturn:
-        """Render the report (and --output), then exit 0 or 1."""
-        from holotype.render import formats
-
-        for warning in report.warnings:
-            self.say(f"warning: {warning}")
-        if self.output is not None:
-            fmt = self.fmt if self.fmt != "text" else _format_from_suffix(self.output)
-            formats.write_report(self.output, report, fmt)
-            if not self.quiet:
-                formats.print_text(self.console, report)
-        elif self.fmt == "text":
-            if not self.quiet:
-                formats.print_text(self.console, report)
-        else:
-            sys.stdout.write(formats.render(report, self.fmt))
-            sys.stdout.flush()
-        sys.exit(0 if report.ok else 1)
-
-
-def _format_from_suffix(path: Path) -> str:
-    return {".json": "json", ".xml": "junit", ".md": "markdown"}.get(path.suffix.lower(), "text")
-
-
-def run_guarded(action: Callable[[], Any]) -> Any:
-    """Run a command body; HolotypeError (and anything unexpected) becomes one line on stderr and exit 2."""
-    from holotype.errors import HolotypeError
-
-    try:
-        return action()
-    except HolotypeError as exc:
-        _fail(str(exc))
-    except KeyboardInterrupt:
-        _fail("interrupted")
-    except (SystemExit, click.exceptions.Exit, click.ClickException):
-        raise
-    except Exception as exc:  # never a traceback for users; HOLOTYPE_DEBUG=1 shows it
-        if os.environ.get("HOLOTYPE_DEBUG"):
-            raise
-        _fail(f"internal error: {type(exc).__name__}: {exc} (set HOLOTYPE_DEBUG=1 for details)")
-
-
-def _fail(message: str) -> NoReturn:
-    from holotype.errors import one_line
-
-    sys.stderr.write(f"holotype: {one_line(message)}\n")
-    sys.stderr.flush()
-    sys.exit(2)
-
-
-# ----------------------------------------------------------------------------- shared options
-
-
-def _project(f: F) -> F:
-    return click.option("--project", "-C", "project", type=PATH, default=Path("."),
-                        show_default=False, help="The project folder (default: the current folder).")(f)
-
-
-def _quiet_color(f: F) -> F:
-    f = click.option("--no-color", is_flag=True, help="No colour (also: NO_COLOR=1).")(f)
-    return click.option("--quiet", is_flag=True, help="No progress, no table; the exit code tells.")(f)
-
-
-def _findings_output(f: F) -> F:
-    f = click.option("--output", type=PATH, default=None,
-                     help="Also write the report to FILE (atomically).")(f)
-    return click.option("--format", "fmt", type=click.Choice(FINDING_FORMATS), default="text", show_default=True,
-                        help="How to report findings.")(f)
-
-
-def _python(f: F) -> F:
-    return click.option("--python", default=None, help="The analysis interpreter to inspect.")(f)
-
-
-def common(*, findings: bool = True, python: bool = False) -> Callable[[F], F]:
-    """The options interface.md gives every command (and --python where it applies)."""
-
-    def decorate(f: F) -> F:
-        f = _quiet_color(f)
-        if findings:
-            f = _findings_output(f)
-        if python:
-            f = _python(f)
-        return _project(f)
-
-    return decorate
+UNSET = object()
+WIDE = 100_000  # outside a terminal text is never wrapped, so paths stay whole in logs
 
 
 class PathParam(click.ParamType):  # type: ignore[type-arg]
@@ -166,137 +47,291 @@ class PathParam(click.ParamType):  # type: ignore[type-arg]
 PATH = PathParam()
 
 
+def _console(stream: Any, no_color: bool) -> Console:
+    from rich.console import Console
+
+    terminal = hasattr(stream, "isatty") and stream.isatty()
+    return Console(file=stream, no_color=no_color, highlight=False, width=None if terminal else WIDE,
+                   soft_wrap=not terminal)
+
+
+class Session:
+    """The options every command shares, the project they point at, and the consoles they imply."""
+
+    def __init__(self, start: Path | None = None, *, fmt: str = "text", output: Path | None = None,
+                 quiet: bool = False, no_color: bool = False, discover: bool = True) -> None:
+        self.given = start
+        self.fmt = fmt
+        self.output = output
+        self.quiet = quiet
+        self.no_color = no_color or bool(os.environ.get("NO_COLOR"))
+        self.discover = discover
+        self._console: Console | None = None
+        self._err: Console | None = None
+        self._project: Path | None = None
+
+    @property
+    def project(self) -> Path:
+        """-C DIR as given; else the nearest folder at or above this one that holds a project."""
+        if self._project is None:
+            if self.given is not None or not self.discover:
+                self._project = self.given if self.given is not None else Path(".")
+            else:
+                from holotype.config import find_project
+
+                here = Path.cwd()
+                found = find_project(here)
+                if found != here:
+                    self.say(f"project: {found}")
+                self._project = found
+        return self._project
+
+    @property
+    def console(self) -> Console:
+        if self._console is None:
+            if sys.stdout is None:
+                from holotype.errors import HolotypeError
+
+                raise HolotypeError("standard output is closed; pass --output FILE or leave stdout open")
+            self._console = _console(sys.stdout, self.no_color)
+        return self._console
+
+    @property
+    def err(self) -> Console:
+        if self._err is None:
+            self._err = _console(sys.stderr, self.no_color)
+        return self._err
+
+    @property
+    def interactive(self) -> bool:
+        return not self.quiet and self.fmt == "text" and self.err.is_terminal
+
+    def say(self, message: str) -> None:
+        if not self.quiet and sys.stderr is not None:
+            self.err.print(message, markup=False)
+
+    def write_text(self, text: str) -> None:
+        """Write a document (appendix, pins) to --output, or to stdout without one."""
+        if self.output is None:
+            if sys.stdout is None:
+                from holotype.errors import HolotypeError
+
+                raise HolotypeError("standard output is closed; pass --output FILE")
+            sys.stdout.write(text)
+            return
+        from holotype.atomic import write_atomic
+
+        write_atomic(self.output, text)
+        self.say(f"wrote {self.output}")
+
+    def emit(self, report: Report) -> int:
+        """Render the report: the human table on the terminal (--output FILE also writes FILE); the exit code."""
+        from holotype.render import format_for, render_findings
+        from holotype.render.terminal import print_report
+
+        for warning in report.warnings:
+            self.say(f"warning: {warning}")
+        if self.output is not None:
+            fmt = self.fmt if self.fmt != "text" else format_for(self.output, FINDINGS, "text")
+            from holotype.atomic import write_atomic
+
+            write_atomic(self.output, render_findings(report, fmt))
+            if not self.quiet:
+                print_report(self.console, report)
+        elif self.fmt == "text":
+            if not self.quiet:
+                print_report(self.console, report)
+        else:
+            text = render_findings(report, self.fmt)
+            if sys.stdout is None:
+                from holotype.errors import HolotypeError
+
+                raise HolotypeError("standard output is closed; pass --output FILE")
+            sys.stdout.write(text)
+            sys.stdout.flush()
+        return 0 if report.ok else 1
+
+
+# ----------------------------------------------------------------------------- shared options
+
+
+def _shared(f: Callable[..., Any], *, findings: bool, python: bool) -> Callable[..., Any]:
+    """Add the options interface.md gives every command; UNSET marks 'not given here' (the group's wins)."""
+    f = click.option("--no-color", is_flag=True, default=None, help="No colour (also: NO_COLOR=1).")(f)
+    f = click.option("--quiet", is_flag=True, default=None, help="No progress, no table; the exit code tells.")(f)
+    if findings:
+        f = click.option("--output", type=PATH, default=None,
+                         help="Write the findings to FILE (format from --format or the suffix); the terminal "
+                              "still gets the table.")(f)
+        f = click.option("--format", "fmt", type=click.Choice(list(FINDINGS)), default="text", show_default=True,
+                         help="How to report findings.")(f)
+    if python:
+        f = click.option("--python", default=None, help="The analysis interpreter to use.")(f)
+    return click.option("--project", "-C", "project", type=PATH, default=None,
+                        help="The project folder (default: the nearest one at or above the current folder).")(f)
+
+
+def _session(ctx: click.Context, project: Path | None, quiet: bool | None, no_color: bool | None,
+             fmt: str = "text", output: Path | None = None, discover: bool = True) -> Session:
+    top: dict[str, Any] = ctx.obj or {}
+    return Session(project if project is not None else top.get("project"), fmt=fmt, output=output,
+                   quiet=bool(quiet if quiet is not None else top.get("quiet")),
+                   no_color=bool(no_color if no_color is not None else top.get("no_color")), discover=discover)
+
+
+def findings_command(name: str, *, python: bool = False) -> Callable[[Callable[..., Report]], click.Command]:
+    """A command whose body takes the session (and its own options) and returns a Report to render."""
+
+    def decorate(body: Callable[..., Report]) -> click.Command:
+        @functools.wraps(body)
+        @click.pass_context
+        def command(ctx: click.Context, /, project: Path | None, quiet: bool | None, no_color: bool | None,
+                    fmt: str, output: Path | None, **options: Any) -> None:
+            session = _session(ctx, project, quiet, no_color, fmt, output)
+            ctx.exit(session.emit(body(session, **options)))
+
+        command.__click_params__ = list(getattr(body, "__click_params__", []))  # type: ignore[attr-defined]
+        return app.command(name)(_shared(command, findings=True, python=python))
+
+    return decorate
+
+
+def document_command(name: str, *, discover: bool = True) -> Callable[[Callable[..., None]], click.Command]:
+    """A command that writes something other than findings (a config, a document, the demo)."""
+
+    def decorate(body: Callable[..., None]) -> click.Command:
+        @functools.wraps(body)
+        @click.pass_context
+        def command(ctx: click.Context, /, project: Path | None, quiet: bool | None, no_color: bool | None,
+                    **options: Any) -> None:
+            body(_session(ctx, project, quiet, no_color, discover=discover), **options)
+
+        command.__click_params__ = list(getattr(body, "__click_params__", []))  # type: ignore[attr-defined]
+        return app.command(name)(_shared(command, findings=False, python=False))
+
+    return decorate
+
+
 class HolotypeGroup(click.Group):
-    """Usage errors as one line on stderr with exit 2, like every other error holotype reports."""
+    """Every error as one line on stderr with exit 2: usage errors, HolotypeError, anything unexpected."""
 
     def main(self, args: Any = None, prog_name: str | None = None, complete_var: str | None = None,
              standalone_mode: bool = True, **extra: Any) -> Any:
+        from holotype.phrasing import one_line
+
+        def fail(message: str) -> None:
+            if sys.stderr is not None:
+                sys.stderr.write(f"holotype: {one_line(message)}\n")
+                sys.stderr.flush()
+            sys.exit(2)
+
         try:
             code = super().main(args, prog_name, complete_var, standalone_mode=False, **extra)
+        except click.exceptions.NoArgsIsHelpError as exc:  # plain `holotype`: the help, as --help shows it
+            click.echo(exc.ctx.get_help() if exc.ctx else "")
+            sys.exit(0)
         except click.UsageError as exc:
             where = f" (see 'holotype {exc.ctx.command.name} --help')" if exc.ctx and exc.ctx.parent else \
                 " (see 'holotype --help')"
-            _fail(exc.format_message() + where)
-        except click.Abort:
-            _fail("interrupted")
-        except click.ClickException as exc:
-            _fail(exc.format_message())
+            fail(exc.format_message() + where)
+        except click.ClickException as exc:  # HolotypeError and its family: their own one-line show()
+            exc.show()
+            sys.exit(exc.exit_code)
+        except (click.Abort, KeyboardInterrupt):
+            fail("interrupted")
+        except (SystemExit, click.exceptions.Exit):
+            raise
+        except RecursionError:
+            fail("input nested too deeply to process (set HOLOTYPE_DEBUG=1 for details)")
+        except Exception as exc:  # never a traceback for users; HOLOTYPE_DEBUG=1 shows it
+            if os.environ.get("HOLOTYPE_DEBUG"):
+                raise
+            fail(f"internal error: {type(exc).__name__}: {exc} (set HOLOTYPE_DEBUG=1 for details)")
         sys.exit(code if isinstance(code, int) else 0)
 
 
 @click.group(cls=HolotypeGroup, context_settings=CONTEXT)
 @click.version_option(__version__, "--version", prog_name="holotype", message="%(prog)s %(version)s")
-def app() -> None:
+@click.option("--project", "-C", "project", type=PATH, default=None,
+              help="The project folder (default: the nearest one at or above the current folder).")
+@click.option("--quiet", is_flag=True, default=None, help="No progress, no table; the exit code tells.")
+@click.option("--no-color", is_flag=True, default=None, help="No colour (also: NO_COLOR=1).")
+@click.pass_context
+def app(ctx: click.Context, project: Path | None, quiet: bool | None, no_color: bool | None) -> None:
     """Record exactly what a data analysis ran on, and prove later that it still gives the same numbers."""
+    ctx.obj = {"project": project, "quiet": quiet, "no_color": no_color}
 
 
 # ----------------------------------------------------------------------------- commands
 
 
-@app.command()
-@common(findings=False)
-def start(project: Path, quiet: bool, no_color: bool) -> None:
+@document_command("start", discover=False)
+def start(session: Session) -> None:
     """Look at the folder and write a starter holotype.toml (never overwrites)."""
-    session = Session(project, quiet=quiet, no_color=no_color)
+    from holotype.commands.start import start_project
 
-    def body() -> None:
-        from holotype.commands.start import start_project
-
-        path = start_project(project)
-        session.say(f"wrote {path}; edit it, then run 'holotype record'")
-
-    run_guarded(body)
+    path = start_project(session.project)
+    session.say(f"wrote {path}; edit it, then run 'holotype record'")
 
 
-@app.command()
+@findings_command("record", python=True)
 @click.option("--no-run", is_flag=True, help="Record the environment, data and code only.")
-@common(python=True)
-def record(project: Path, no_run: bool, python: str | None, fmt: str, output: Path | None, quiet: bool,
-           no_color: bool) -> None:
+def record(session: Session, no_run: bool, python: str | None) -> Report:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.record import record_project
+    from holotype.render.progress import AnalysisPanel, HashBar
 
-    def body() -> None:
-        from holotype.commands.record import record_project
-        from holotype.render.progress import AnalysisPanel, HashBar
-
-        panel = AnalysisPanel(session.err) if session.interactive else None
-        try:
-            outcome = record_project(project, run=not no_run, python=python,
-                                     hash_progress=HashBar(session.err) if session.interactive else None,
-                                     run_progress=panel)
-        finally:
-            if panel is not None:
-                panel.close()
-        session.emit(outcome.report)
-
-    run_guarded(body)
+    panel = AnalysisPanel(session.err) if session.interactive else None
+    try:
+        return record_project(session.project, run=not no_run, python=python,
+                              hash_progress=HashBar(session.err) if session.interactive else None,
+                              run_progress=panel).report
+    finally:
+        if panel is not None:
+            panel.close()
 
 
-@app.command()
+@findings_command("check", python=True)
 @click.option("--full", is_flag=True, help="Hash every file again (no digest cache) and verify every baseline.")
 @click.option("--strict", is_flag=True, help="Treat warnings as failures.")
-@common(python=True)
-def check(project: Path, full: bool, strict: bool, python: str | None, fmt: str, output: Path | None, quiet: bool,
-          no_color: bool) -> None:
+def check(session: Session, full: bool, strict: bool, python: str | None) -> Report:
     """Compare the project as it is now with holotype.lock, running nothing."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.check import check_project
+    from holotype.render.progress import HashBar
 
-    def body() -> None:
-        from holotype.commands.check import check_project
-        from holotype.render.progress import HashBar
-
-        report = check_project(project, strict=strict, full=full, python=python,
-                               progress=HashBar(session.err) if session.interactive else None)
-        session.emit(report)
-
-    run_guarded(body)
+    return check_project(session.project, strict=strict, full=full, python=python,
+                         progress=HashBar(session.err) if session.interactive else None)
 
 
-@app.command()
+@findings_command("replay", python=True)
 @click.argument("names", nargs=-1)
 @click.option("--twice", is_flag=True, help="Run each analysis twice and flag outputs that differ.")
 @click.option("--dry-run", is_flag=True, help="Print what would run, with which environment, and run nothing.")
-@common(python=True)
-def rerun(project: Path, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None, fmt: str,
-          output: Path | None, quiet: bool, no_color: bool) -> None:
+def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None) -> Report:
     """Run the analyses (all, or NAMES) with their seeds and compare every output with its baseline."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.replay import replay_project
+    from holotype.render.progress import AnalysisPanel
 
-    def body() -> None:
-        from holotype.commands.rerun import rerun_project
-        from holotype.render.progress import AnalysisPanel
-
-        panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
-        try:
-            report = rerun_project(project, list(names), twice=twice, python=python, dry_run=dry_run,
-                                   progress=panel)
-        finally:
-            if panel is not None:
-                panel.close()
-        session.emit(report)
-
-    run_guarded(body)
+    panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
+    try:
+        return replay_project(session.project, list(names), twice=twice, python=python, dry_run=dry_run,
+                              progress=panel)
+    finally:
+        if panel is not None:
+            panel.close()
 
 
-@app.command()
+@findings_command("adopt")
 @click.argument("names", nargs=-1)
 @click.option("--reason", default=None, help="Why the new results replace the recorded ones (required).")
-@common()
-def accept(project: Path, names: tuple[str, ...], reason: str | None, fmt: str, output: Path | None, quiet: bool,
-           no_color: bool) -> None:
-    """Take the current outputs of the analyses (all, or NAMES) as the new baselines, and log why."""
-    session = Session(project, fmt, output, quiet, no_color)
+def adopt(session: Session, names: tuple[str, ...], reason: str | None) -> Report:
+    """Take the outputs of the analyses (all, or NAMES) as the new baselines, and log why."""
+    from holotype.commands.adopt import adopt_outputs
 
-    def body() -> None:
-        from holotype.commands.accept import accept_outputs
-
-        session.emit(accept_outputs(project, list(names), reason or ""))
-
-    run_guarded(body)
+    return adopt_outputs(session.project, list(names), reason or "")
 
 
-@app.command()
+@findings_command("compare")
 @click.argument("expected", type=PATH)
 @click.argument("actual", type=PATH)
 @click.option("--atol", type=float, default=None, help="Absolute tolerance.")
@@ -304,137 +339,94 @@ def accept(project: Path, names: tuple[str, ...], reason: str | None, fmt: str, 
 @click.option("--ulps", type=int, default=None, help="Distance in IEEE-754 binary64 steps.")
 @click.option("--digits", type=float, default=None, help="Correct significant digits (log relative error).")
 @click.option("--key", multiple=True, help="Match rows by this column (repeatable).")
-@click.option("--sign-free", "sign_free", multiple=True, help="Columns (globs) that may flip sign as a whole.")
+@click.option("--sign-free", "sign_free", multiple=True, metavar="COLUMN",
+              help="Columns (globs) that may flip sign as a whole (repeatable).")
 @click.option("--ignore", multiple=True, help="Skip these columns or JSON paths (globs).")
-@common()
-def compare(project: Path, expected: Path, actual: Path, atol: float | None, rtol: float | None, ulps: int | None,
-            digits: float | None, key: tuple[str, ...], sign_free: tuple[str, ...], ignore: tuple[str, ...], fmt: str,
-            output: Path | None, quiet: bool, no_color: bool) -> None:
+def compare(session: Session, expected: Path, actual: Path, atol: float | None, rtol: float | None,
+            ulps: int | None, digits: float | None, key: tuple[str, ...], sign_free: tuple[str, ...],
+            ignore: tuple[str, ...]) -> Report:
     """Compare two result files, or two folders paired by relative path, within tolerances."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.compare import compare_inputs, rulebook_from_flags
 
-    def body() -> None:
-        from holotype.commands.compare_files import compare_inputs, rulebook_from_flags
-
-        rules = rulebook_from_flags(atol, rtol, ulps, digits, list(key), list(sign_free), list(ignore))
-        session.emit(compare_inputs(project / expected, project / actual, rules))
-
-    run_guarded(body)
+    rules = rulebook_from_flags(atol, rtol, ulps, digits, list(key), list(sign_free), list(ignore))
+    base = session.given if session.given is not None else Path(".")
+    return compare_inputs(base / expected, base / actual, rules)
 
 
-@app.command()
+@findings_command("diff")
 @click.argument("a", required=False, type=PATH)
 @click.argument("b", required=False, type=PATH)
 @click.option("--rev", default=None, help="Compare the lock committed at this git revision with the working copy's.")
-@common()
-def diff(project: Path, a: Path | None, b: Path | None, rev: str | None, fmt: str, output: Path | None, quiet: bool,
-         no_color: bool) -> None:
+def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> Report:
     """What differs between two lockfiles (A B, or --rev REV against the working copy)."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.diff import diff_files, diff_revision
+    from holotype.errors import HolotypeError
 
-    def body() -> None:
-        from holotype.commands.diff import diff_files, diff_revision
-        from holotype.errors import HolotypeError
-
-        if rev is not None:
-            if a is not None or b is not None:
-                raise HolotypeError("give either two lockfiles or --rev REV, not both")
-            session.emit(diff_revision(project, rev))
-        if a is None or b is None:
-            raise HolotypeError("diff needs two lockfiles (A.lock B.lock) or --rev REV")
-        session.emit(diff_files(project / a, project / b, project))
-
-    run_guarded(body)
+    if rev is not None:
+        if a is not None or b is not None:
+            raise HolotypeError("give either two lockfiles or --rev REV, not both")
+        return diff_revision(session.project, rev)
+    if a is None or b is None:
+        raise HolotypeError("diff needs two lockfiles (A.lock B.lock) or --rev REV")
+    base = session.given if session.given is not None else Path(".")
+    return diff_files(base / a, base / b, session.project)
 
 
-@app.command()
+@findings_command("recreate")
 @click.argument("folder", type=PATH)
 @click.option("--python", default=None, help="Interpreter to build it with (default: one of the locked version).")
 @click.option("--find-links", multiple=True, help="Passed to the installer (repeatable).")
 @click.option("--index-url", default=None, help="Passed to the installer.")
 @click.option("--no-index", is_flag=True, help="Passed to the installer.")
-@common()
-def rebuild(project: Path, folder: Path, python: str | None, find_links: tuple[str, ...], index_url: str | None,
-            no_index: bool, fmt: str, output: Path | None, quiet: bool, no_color: bool) -> None:
+def recreate(session: Session, folder: Path, python: str | None, find_links: tuple[str, ...],
+             index_url: str | None, no_index: bool) -> Report:
     """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
-    session = Session(project, fmt, output, quiet, no_color)
+    from holotype.commands.recreate import InstallerOptions, recreate_environment
 
-    def body() -> None:
-        from holotype.commands.rebuild import InstallerOptions, rebuild_environment
-
-        session.say(f"building {folder} from holotype.lock …")
-        options = InstallerOptions(list(find_links), index_url, no_index)
-        session.emit(rebuild_environment(project, folder, python=python, installer=options))
-
-    run_guarded(body)
+    session.say(f"building {folder} from holotype.lock …")
+    options = InstallerOptions(list(find_links), index_url, no_index)
+    return recreate_environment(session.project, folder, python=python, installer=options)
 
 
-@app.command()
-@click.option("--format", "fmt", type=click.Choice(("requirements", "pylock")), default="requirements",
+@document_command("pins")
+@click.option("--to", "target", type=click.Choice(("requirements", "pylock")), default="requirements",
               show_default=True, help="requirements.txt pins or a PEP 751 pylock.toml.")
-@click.option("--output", type=PATH, default=None, help="Write to FILE instead of stdout.")
+@click.option("--output", type=PATH, default=None, help="Write to FILE (default: standard output).")
 @click.option("--find-links", multiple=True, type=PATH,
               help="Folders holding the locked wheels (pylock needs their hashes).")
-@common(findings=False)
-def export(project: Path, fmt: str, output: Path | None, find_links: tuple[Path, ...], quiet: bool,
-           no_color: bool) -> None:
+def pins(session: Session, target: str, output: Path | None, find_links: tuple[Path, ...]) -> None:
     """Write the locked packages in an open standard format."""
-    session = Session(project, quiet=quiet, no_color=no_color)
+    from holotype.commands.pins import pin_packages
 
-    def body() -> None:
-        from holotype.commands.export import export_lock
-
-        _write_or_print(session, export_lock(project, fmt, list(find_links)), output)
-
-    run_guarded(body)
+    session.output = output
+    session.write_text(pin_packages(session.project, target, list(find_links)))
 
 
-@app.command()
-@click.option("--format", "fmt", type=click.Choice(("markdown", "html")), default="markdown", show_default=True,
+@document_command("report")
+@click.option("--format", "fmt", type=click.Choice(list(APPENDIX)), default="markdown", show_default=True,
               help="Markdown, or one self-contained HTML file.")
-@click.option("--output", type=PATH, default=None, help="Write to FILE instead of stdout.")
-@common(findings=False)
-def report(project: Path, fmt: str, output: Path | None, quiet: bool, no_color: bool) -> None:
+@click.option("--output", type=PATH, default=None, help="Write to FILE (default: standard output).")
+def report(session: Session, fmt: str, output: Path | None) -> None:
     """A methods and provenance appendix for a thesis or paper."""
-    session = Session(project, quiet=quiet, no_color=no_color)
+    from holotype.commands.report import build_report
 
-    def body() -> None:
-        from holotype.commands.report import build_report
-
-        _write_or_print(session, build_report(project, fmt), output)
-
-    run_guarded(body)
+    session.output = output
+    session.write_text(build_report(session.project, fmt))
 
 
-def _write_or_print(session: Session, text: str, output: Path | None) -> None:
-    if output is None:
-        sys.stdout.write(text)
-        return
-    from holotype.atomic import write_atomic
-
-    write_atomic(output, text)
-    session.say(f"wrote {output}")
-
-
-@app.command()
+@document_command("demo", discover=False)
 @click.argument("folder", required=False, type=PATH, default=Path("holotype-demo"))
-@common(findings=False)
-def demo(project: Path, folder: Path, quiet: bool, no_color: bool) -> None:
+def demo(session: Session, folder: Path) -> None:
     """The whole cycle on a bundled, invented lake survey (FOLDER: new or empty, default ./holotype-demo)."""
-    session = Session(project, quiet=quiet, no_color=no_color)
-    folder = project / folder
+    from rich.console import Console
 
-    def body() -> None:
-        from holotype.demo.tour import run_demo
+    from holotype.demo.tour import run_demo
 
-        console = session.console
-        if quiet:
-            from rich.console import Console
-
-            console = Console(file=open(os.devnull, "w"))
-        run_demo(folder, console)
-
-    run_guarded(body)
+    if session.quiet:
+        with open(os.devnull, "w", encoding="utf-8") as sink:
+            run_demo(session.project / folder, Console(file=sink))
+        return
+    run_demo(session.project / folder, session.console)
 
 
 def main() -> None:

@@ -10,16 +10,16 @@ from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 from typing import Any
 
-from holotype.compare.tolerance import DEFAULT_TOLERANCE, RULE_KEYS, Rule, RuleBook, Tolerance, parse_rule_settings
-from holotype.errors import ConfigError
+from holotype.errors import ConfigError, SeedError, ToleranceError
 from holotype.findings.policy import DEFAULT_SEVERITY, SEVERITIES
+from holotype.tolerance import DEFAULT_TOLERANCE, RULE_KEYS, Rule, RuleBook, default_tolerance, parse_rule_settings
 
 CONFIG_NAME = "holotype.toml"
 TOP_KEYS = (
     "python", "data", "code", "exclude", "seed", "threads", "seed_globals",
     "tolerance", "rules", "analyses", "policy", "allow_outside",
 )
-ANALYSIS_KEYS = ("run", "outputs", "inputs", "timeout")
+ANALYSIS_KEYS = ("command", "outputs", "inputs", "timeout")
 MAX_SEED = 2**63 - 1
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -27,7 +27,7 @@ _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 @dataclass(frozen=True)
 class Analysis:
     name: str
-    run: str
+    command: str
     outputs: tuple[str, ...]
     inputs: tuple[str, ...] = ()
     timeout: float | None = None
@@ -57,29 +57,58 @@ class Config:
         raise ConfigError(f"no analysis named '{name}' (have: {', '.join(a.name for a in self.analyses) or 'none'})",
                           self.source)
 
+    def select(self, names: list[str] | None) -> list[Analysis]:
+        """The analyses to run (all, or `names`), in run order; an unknown name is an error."""
+        ordered = run_order(self.analyses, self.source)
+        if not names:
+            return ordered
+        known = {a.name for a in ordered}
+        unknown = [n for n in names if n not in known]
+        if unknown:
+            raise ConfigError(f"no analysis named {', '.join(repr(n) for n in unknown)} "
+                              f"(declared: {', '.join(sorted(known)) or 'none'})", self.source)
+        return [a for a in ordered if a.name in names]
+
+    def seed_to_use(self, recorded: int | None) -> int:
+        """The project seed analyses run with: the config's, else the recorded one."""
+        if self.seed is not None:
+            return self.seed
+        if recorded is not None:
+            return recorded
+        raise SeedError("no project seed in the config or the lock; run holotype record", self.source)
+
 
 def run_order(analyses: tuple[Analysis, ...], source: Path | None = None) -> list[Analysis]:
-    """Declared order, except that an analysis reading another's output runs after it; cycles are errors."""
+    """Declared order, except that an analysis reading another's output runs after it; cycles are errors.
+
+    Depth-first without recursion, so a chain of thousands of analyses is fine.
+    """
     producer = {out: a.name for a in analyses for out in a.outputs}
     by_name = {a.name: a for a in analyses}
     order: list[Analysis] = []
     state: dict[str, int] = {}  # 1 visiting, 2 done
-
-    def visit(a: Analysis, chain: list[str]) -> None:
-        if state.get(a.name) == 2:
-            return
-        if state.get(a.name) == 1:
-            raise ConfigError("analyses depend on each other in a cycle: " + " → ".join(chain + [a.name]), source)
-        state[a.name] = 1
-        for inp in a.inputs:
-            dep = producer.get(inp)
-            if dep is not None and dep != a.name:
-                visit(by_name[dep], chain + [a.name])
-        state[a.name] = 2
-        order.append(a)
-
-    for a in analyses:
-        visit(a, [])
+    for first in analyses:
+        if state.get(first.name) == 2:
+            continue
+        stack: list[tuple[Analysis, int]] = [(first, 0)]
+        state[first.name] = 1
+        while stack:
+            a, i = stack[-1]
+            if i < len(a.inputs):
+                stack[-1] = (a, i + 1)
+                dep = producer.get(a.inputs[i])
+                if dep is None or dep == a.name or state.get(dep) == 2:
+                    continue
+                if state.get(dep) == 1:
+                    chain = [s[0].name for s in stack] + [dep]
+                    chain = chain[chain.index(dep):]
+                    raise ConfigError("analyses depend on each other in a cycle: " + " → ".join(chain), source)
+                state[dep] = 1
+                stack.append((by_name[dep], 0))
+                continue
+            stack.pop()
+            state[a.name] = 2
+            order.append(a)
     return order
 
 
@@ -143,36 +172,22 @@ def _tolerance(table: Any, where: str, v: _Validator, *, is_rule: bool) -> dict[
     settings = {k: val for k, val in table.items() if k in RULE_KEYS}
     try:
         return parse_rule_settings(settings, f"{where}.")
-    except ValueError as exc:
-        raise v.fail(str(exc)) from None
+    except ToleranceError as exc:
+        raise ToleranceError(exc.detail, v.path) from None
 
 
-def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
-    """Validate the holotype table and build a Config."""
-    allow_outside = doc.get("allow_outside", False)
-    v = _Validator(source, root, bool(allow_outside))
-    if not isinstance(allow_outside, bool):
-        raise v.fail(f"'allow_outside' should be true or false, found {allow_outside!r}")
-    v.unknown(doc, TOP_KEYS, "")
-    python = doc.get("python")
-    if python is not None and (not isinstance(python, str) or not python or "\x00" in python):
-        raise v.fail(f"'python' should be a path to an interpreter, found {python!r}")
-    seed = doc.get("seed")
-    if seed is not None:
-        seed = _int(seed, "seed", v, 0, MAX_SEED)
-    threads = doc.get("threads")
-    if threads is not None:
-        threads = _int(threads, "threads", v, 1, 4096)
-    seed_globals = doc.get("seed_globals", False)
-    if not isinstance(seed_globals, bool):
-        raise v.fail(f"'seed_globals' should be true or false, found {seed_globals!r}")
-    code = v.paths(doc, "code") if "code" in doc else None
+def _bool(doc: dict[str, Any], key: str, v: _Validator) -> bool:
+    value = doc.get(key, False)
+    if not isinstance(value, bool):
+        raise v.fail(f"'{key}' should be true or false, found {value!r}")
+    return value
 
+
+def _rules(doc: dict[str, Any], v: _Validator) -> RuleBook:
+    """[tolerance] and [[rules]]."""
     default = DEFAULT_TOLERANCE
     if "tolerance" in doc:
-        settings = _tolerance(doc["tolerance"], "tolerance", v, is_rule=False)
-        default = Tolerance().overlay(settings) if any(k in settings for k in ("atol", "rtol", "ulps", "digits")) \
-            else DEFAULT_TOLERANCE.overlay(settings)
+        default = default_tolerance(_tolerance(doc["tolerance"], "tolerance", v, is_rule=False))
     rules: list[Rule] = []
     raw_rules = doc.get("rules", [])
     if not isinstance(raw_rules, list):
@@ -184,66 +199,89 @@ def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
         if not isinstance(match, str) or not match or "\x00" in match:
             raise v.fail(f"'{where}.match' should be a glob like 'results/*.csv:PC*'")
         rules.append(Rule(match=match, settings=settings))
+    return RuleBook(default=default, rules=tuple(rules))
 
-    analyses: list[Analysis] = []
-    raw_analyses = doc.get("analyses", {})
-    if not isinstance(raw_analyses, dict):
+
+def _analysis(name: str, table: Any, v: _Validator) -> Analysis:
+    """One [analyses.NAME] table."""
+    where = f"analyses.{name}"
+    if not _NAME.match(name):
+        raise v.fail(f"analysis name '{name}' should use letters, digits, '.', '_' or '-'")
+    if not isinstance(table, dict):
+        raise v.fail(f"'{where}' should be a table")
+    v.unknown(table, ANALYSIS_KEYS, where + ".")
+    command = table.get("command")
+    if not isinstance(command, str) or not command.strip():
+        raise v.fail(f"'{where}.command' should be the command to run, e.g. \"python analysis/{name}.py\"")
+    if "\x00" in command:
+        raise v.fail(f"'{where}.command' contains a NUL byte")
+    outputs = v.paths(table, "outputs", where + ".")
+    if not outputs:
+        raise v.fail(f"'{where}.outputs' should list at least one output file")
+    timeout = table.get("timeout")
+    if timeout is not None:
+        if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or math.isnan(timeout) \
+                or not 0 < timeout <= 7 * 86400:
+            raise v.fail(f"'{where}.timeout' should be seconds above 0 (at most a week), found {timeout!r}")
+        timeout = float(timeout)
+    return Analysis(name, command, outputs, v.paths(table, "inputs", where + "."), timeout)
+
+
+def _analyses(doc: dict[str, Any], v: _Validator) -> tuple[Analysis, ...]:
+    """The [analyses] table: each analysis, no output declared twice, no dependency cycle."""
+    raw = doc.get("analyses", {})
+    if not isinstance(raw, dict):
         raise v.fail("'analyses' should be a table of [analyses.NAME] tables")
-    for name, table in raw_analyses.items():
-        where = f"analyses.{name}"
-        if not _NAME.match(name):
-            raise v.fail(f"analysis name '{name}' should use letters, digits, '.', '_' or '-'")
-        if not isinstance(table, dict):
-            raise v.fail(f"'{where}' should be a table")
-        v.unknown(table, ANALYSIS_KEYS, where + ".")
-        run = table.get("run")
-        if not isinstance(run, str) or not run.strip():
-            raise v.fail(f"'{where}.run' should be the command to run, e.g. \"python analysis/{name}.py\"")
-        if "\x00" in run:
-            raise v.fail(f"'{where}.run' contains a NUL byte")
-        outputs = v.paths(table, "outputs", where + ".")
-        if not outputs:
-            raise v.fail(f"'{where}.outputs' should list at least one output file")
-        timeout = table.get("timeout")
-        if timeout is not None:
-            if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or math.isnan(timeout) \
-                    or not 0 < timeout <= 7 * 86400:
-                raise v.fail(f"'{where}.timeout' should be seconds above 0 (at most a week), found {timeout!r}")
-            timeout = float(timeout)
-        analyses.append(Analysis(name, run, outputs, v.paths(table, "inputs", where + "."), timeout))
+    analyses = tuple(_analysis(name, table, v) for name, table in raw.items())
     seen_outputs: dict[str, str] = {}
     for a in analyses:
         for out in a.outputs:
             if out in seen_outputs:
                 raise v.fail(f"output '{out}' is declared by both '{seen_outputs[out]}' and '{a.name}'")
             seen_outputs[out] = a.name
+    run_order(analyses, v.path)  # a dependency cycle is a config error, found before anything runs
+    return analyses
 
-    run_order(tuple(analyses), source)  # a dependency cycle is a config error, found before anything runs
 
-    policy_table = doc.get("policy", {})
-    if not isinstance(policy_table, dict):
+def _policy(doc: dict[str, Any], v: _Validator) -> dict[str, str]:
+    """The [policy] table: finding kind → fail, warn or info."""
+    table = doc.get("policy", {})
+    if not isinstance(table, dict):
         raise v.fail("'policy' should be a table of finding kinds to fail/warn/info")
     policy: dict[str, str] = {}
-    for kind, severity in policy_table.items():
+    for kind, severity in table.items():
         if kind not in DEFAULT_SEVERITY:
             raise v.fail(f"'policy.{kind}' is not a finding kind{_suggest(kind, list(DEFAULT_SEVERITY))}")
         if severity not in SEVERITIES:
             raise v.fail(f"'policy.{kind}' should be one of fail, warn, info; found {severity!r}")
         policy[kind] = severity
+    return policy
 
+
+def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
+    """Validate the holotype table and build a Config: one validator per table."""
+    allow_outside = doc.get("allow_outside", False)
+    v = _Validator(source, root, bool(allow_outside))
+    _bool(doc, "allow_outside", v)
+    v.unknown(doc, TOP_KEYS, "")
+    python = doc.get("python")
+    if python is not None and (not isinstance(python, str) or not python or "\x00" in python):
+        raise v.fail(f"'python' should be a path to an interpreter, found {python!r}")
+    seed = doc.get("seed")
+    threads = doc.get("threads")
     return Config(
         root=root,
         source=source,
         python=python,
         data=v.paths(doc, "data"),
-        code=code,
+        code=v.paths(doc, "code") if "code" in doc else None,
         exclude=tuple(_glob_list(doc, "exclude", v)),
-        seed=seed,
-        threads=threads,
-        seed_globals=seed_globals,
-        rulebook=RuleBook(default=default, rules=tuple(rules)),
-        analyses=tuple(analyses),
-        policy=policy,
+        seed=None if seed is None else _int(seed, "seed", v, 0, MAX_SEED),
+        threads=None if threads is None else _int(threads, "threads", v, 1, 4096),
+        seed_globals=_bool(doc, "seed_globals", v),
+        rulebook=_rules(doc, v),
+        analyses=_analyses(doc, v),
+        policy=_policy(doc, v),
         allow_outside=bool(allow_outside),
         warnings=tuple(v.warnings),
     )
@@ -269,6 +307,33 @@ def _read_toml(path: Path) -> dict[str, Any]:
         raise ConfigError(f"not UTF-8 text (byte {exc.start})", path) from None
     except tomllib.TOMLDecodeError as exc:
         raise ConfigError(f"invalid TOML: {exc}", path) from None
+    except RecursionError:
+        raise ConfigError("invalid TOML: nested too deeply", path) from None
+
+
+def holds_project(folder: Path) -> bool:
+    """Whether `folder` has a holotype.toml, or a pyproject.toml with a [tool.holotype] table."""
+    if (folder / CONFIG_NAME).is_file():
+        return True
+    pyproject = folder / "pyproject.toml"
+    if not pyproject.is_file():
+        return False
+    try:
+        doc = tomllib.loads(pyproject.read_text(encoding="utf-8"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, RecursionError):
+        return False
+    tool = doc.get("tool")
+    return isinstance(tool, dict) and "holotype" in tool
+
+
+def find_project(start: Path) -> Path:
+    """The nearest folder at or above `start` that holds a project (as version control finds its repository);
+    `start` itself when none does."""
+    start = Path(start).absolute()
+    for folder in (start, *start.parents):
+        if holds_project(folder):
+            return folder
+    return start
 
 
 def find_config_source(root: Path) -> tuple[Path | None, dict[str, Any] | None, list[str]]:

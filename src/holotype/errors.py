@@ -1,26 +1,49 @@
-"""The one exception type users see: anything that makes holotype unable to judge (exit 2)."""
+"""The one error root: anything a user can cause that leaves holotype unable to judge (exit code 2).
+
+`HolotypeError` is a `click.ClickException`, so the command line shows it the click way, but with
+its own `show()`: one line on stderr, control characters escaped, never a traceback.
+"""
 
 from __future__ import annotations
 
+import sys
 from pathlib import Path
+from typing import IO, Any
+
+import click
+
+from holotype.phrasing import one_line
 
 
-def one_line(text: str) -> str:
-    """`text` with control characters (newlines from user input, say) shown escaped, so it stays one line."""
-    return "".join(repr(c)[1:-1] if (ord(c) < 32 or ord(c) == 127) else c for c in text)
-
-
-class HolotypeError(Exception):
+class HolotypeError(click.ClickException):
     """A problem with the user's input that stops a command; printed as one line, exit code 2."""
+
+    exit_code = 2
 
     def __init__(self, message: str, path: Path | str | None = None) -> None:
         self.path = one_line(str(path)) if path is not None else None
-        message = one_line(message)
-        super().__init__(f"{self.path}: {message}" if self.path else message)
+        self.detail = one_line(message)
+        super().__init__(f"{self.path}: {self.detail}" if self.path else self.detail)
+
+    def __str__(self) -> str:
+        return self.message
+
+    def show(self, file: IO[Any] | None = None) -> None:
+        stream = file if file is not None else sys.stderr
+        stream.write(f"holotype: {one_line(self.message)}\n")
+        stream.flush()
 
 
 class ConfigError(HolotypeError):
     """holotype.toml or [tool.holotype] is unreadable or invalid."""
+
+
+class ToleranceError(ConfigError):
+    """A tolerance setting (in the config or a compare flag) is not valid; the message names it."""
+
+
+class SeedError(ConfigError):
+    """No project seed can be found or derived."""
 
 
 class LockfileError(HolotypeError):
@@ -29,3 +52,20 @@ class LockfileError(HolotypeError):
 
 class InputError(HolotypeError):
     """A file given to a command cannot be read or parsed."""
+
+
+class UnreadableOutput(InputError):
+    """A compared file cannot be parsed in its format; `label` names it."""
+
+    def __init__(self, message: str, label: str) -> None:
+        self.label = label
+        self.reason = one_line(message)
+        super().__init__(message, label)
+
+
+class BaselineError(HolotypeError):
+    """A baseline object is missing, unreadable or does not match its digest."""
+
+
+class InstallError(HolotypeError):
+    """Building an environment (recreate) failed; the message carries the installer's reason."""

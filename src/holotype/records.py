@@ -1,9 +1,17 @@
-"""Plain data that flows between capture, compare and the lockfile: what an analysis ran on."""
+"""Plain data that flows between capture, compare and the lockfile: what an analysis ran on.
+
+Each record type is also the declaration of its lockfile table: `schema.py` reads and writes
+them field by field, so adding a key to the lockfile is adding a field here (with its
+`entry(...)` metadata where the TOML key or its rules differ from the plain field).
+"""
 
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
+from pathlib import Path
+from typing import Any, NamedTuple
+
+from holotype.schema import entry
 
 ORIGIN_KINDS = ("index", "vcs", "directory", "editable", "archive", "unknown")
 
@@ -24,8 +32,8 @@ class Interpreter:
 @dataclass(frozen=True)
 class PlatformInfo:
     system: str
-    release: str
-    machine: str
+    release: str = entry(read_default="")
+    machine: str = entry()
     libc: str | None = None
     libc_version: str | None = None
 
@@ -38,7 +46,7 @@ class PlatformInfo:
 class Origin:
     """Where an installed package came from (PEP 610 direct_url.json, credentials stripped)."""
 
-    kind: str = "index"
+    kind: str = entry(default="index", choices=ORIGIN_KINDS)
     url: str | None = None
     vcs: str | None = None
     commit: str | None = None
@@ -58,40 +66,52 @@ class Origin:
 
 @dataclass(frozen=True)
 class PackageRecord:
-    name: str  # PEP 503 normalised
-    version: str
-    origin: Origin = field(default_factory=Origin)
+    name: str = entry(from_key=True)  # PEP 503 normalised
+    version: str = entry()
+    origin: Origin = entry(default_factory=Origin, key="source")
     installer: str | None = None
     requested: bool = False
     used: bool = False
     requires: tuple[str, ...] = ()
-    top_level: tuple[str, ...] = ()
+    top_level: tuple[str, ...] = entry(default=(), key="imports")
+
+
+def _file_kind(table: dict[str, Any]) -> str:
+    return "symlink" if "symlink" in table else "file"
 
 
 @dataclass(frozen=True)
 class FileRecord:
-    path: str  # project-relative POSIX path
-    kind: str  # "file" or "symlink"
-    size: int = 0
-    sha256: str | None = None
-    target: str | None = None  # symlink text
+    path: str = entry(from_key=True)  # project-relative POSIX path
+    kind: str = entry(derive=_file_kind)  # "file" or "symlink"
+    size: int = entry(default=0, omit_default=True)
+    sha256: str | None = entry(default=None, digest=True)
+    target: str | None = entry(default=None, key="symlink")  # symlink text
 
 
 @dataclass(frozen=True)
 class OutputRecord:
-    path: str
-    sha256: str
-    size: int
+    path: str = entry(from_key=True)
+    sha256: str = entry(digest=True)
+    size: int = entry()
     tolerance: dict[str, Any] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
 class AnalysisRecord:
-    name: str
-    run: str
-    seed: int
+    name: str = entry(from_key=True)
+    command: str = entry()
+    seed: int = entry()
     outputs: dict[str, OutputRecord] = field(default_factory=dict)
     inputs: tuple[str, ...] = ()
+
+
+class Change(NamedTuple):
+    """One output's baseline replaced: (output path, old digest, new digest)."""
+
+    output: str
+    old: str
+    new: str
 
 
 @dataclass(frozen=True)
@@ -100,7 +120,7 @@ class HistoryEntry:
     who: str
     reason: str
     analyses: tuple[str, ...]
-    changes: tuple[tuple[str, str, str], ...] = ()  # (output path, old digest, new digest)
+    changes: tuple[Change, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -115,15 +135,61 @@ class Environment:
 
 
 @dataclass
-class Lock:
-    interpreter: Interpreter
-    platform: PlatformInfo
-    packages: dict[str, PackageRecord]
-    recorded: str = ""
-    holotype: str = ""
-    project_seed: int | None = None
-    data: dict[str, FileRecord] = field(default_factory=dict)
-    code: dict[str, FileRecord] = field(default_factory=dict)
-    analyses: dict[str, AnalysisRecord] = field(default_factory=dict)
-    history: list[HistoryEntry] = field(default_factory=list)
-    format: int = 1
+class LockContents:
+    """Everything holotype.lock holds (the format is `lockfile.py`; the keys are these fields)."""
+
+    interpreter: Interpreter = entry(order=4)
+    platform: PlatformInfo = entry(order=5)
+    packages: dict[str, PackageRecord] = entry(order=6)
+    recorded: str = entry(default="", order=2)
+    holotype: str = entry(default="", order=1)
+    project_seed: int | None = entry(default=None, order=3)
+    data: dict[str, FileRecord] = entry(default_factory=dict, order=7)
+    code: dict[str, FileRecord] = entry(default_factory=dict, order=8)
+    analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)
+    history: list[HistoryEntry] = entry(default_factory=list, order=10)
+    format: int = entry(default=2, order=0)
+    # said once to the user when this was read from an older format; never written
+    notices: tuple[str, ...] = entry(default=(), skip=True)
+
+
+@dataclass(frozen=True)
+class ProducedOutput:
+    """An output file as a run left it, digested right after that run ended."""
+
+    path: str
+    sha256: str
+    size: int
+    data: bytes = field(repr=False, default=b"")
+
+
+@dataclass
+class RunResult:
+    """What one run of one analysis did: exit status, duration, log, and the outputs it produced."""
+
+    name: str
+    command: str
+    seed: int
+    log: Path
+    timeout: float | None = None
+    returncode: int | None = None
+    seconds: float = 0.0
+    timed_out: bool = False
+    tail: list[str] = field(default_factory=list)
+    outputs: dict[str, ProducedOutput] = field(default_factory=dict)
+    missing: list[str] = field(default_factory=list)
+    error: str | None = None
+
+    @property
+    def ok(self) -> bool:
+        return self.error is None and self.returncode == 0 and not self.timed_out and not self.missing
+
+    def failure_text(self) -> str:
+        if self.error:
+            return self.error
+        tail = " | ".join(line.strip() for line in self.tail[-3:] if line.strip())
+        if self.timed_out:
+            return f"timed out after {self.timeout or 0:g}s" + (f"; last output: {tail}" if tail else "")
+        if self.returncode != 0:
+            return f"exited with code {self.returncode}" + (f": {tail}" if tail else "")
+        return "did not write " + ", ".join(self.missing)

@@ -1,6 +1,6 @@
 """Seeds for analysis scripts. Standard library only: importable without holotype's other dependencies.
 
-Inside `holotype record`/`rerun`, each analysis process gets HOLOTYPE_SEED (its own seed),
+Inside `holotype record`/`replay`, each analysis process gets HOLOTYPE_SEED (its own seed),
 HOLOTYPE_PROJECT_SEED and PYTHONHASHSEED. Run by hand, the project seed is read from
 holotype.toml (or [tool.holotype] in pyproject.toml) in the current folder or above, so a
 script behaves the same either way. A script that must not import holotype can do:
@@ -78,3 +78,10 @@ def rng(name: str | None = None) -> Any:
         raise ImportError("holotype.seeds.rng needs NumPy in the analysis environment; "
                           "use holotype.seeds.seed() with your own generator instead") from None
     return np.random.default_rng(seed(name))
+
+
+def draw_seed() -> int:
+    """A fresh project seed: positive and below 2**31, so every library that takes a seed accepts it."""
+    import secrets
+
+    return 1 + secrets.randbelow(2**31 - 1)

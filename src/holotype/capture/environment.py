@@ -22,6 +22,14 @@ def probe_source() -> str:
     return resources.files("holotype.capture").joinpath("probe.py").read_text(encoding="utf-8")
 
 
+VENV_INTERPRETERS = (".venv/bin/python", ".venv/Scripts/python.exe", "venv/bin/python")
+
+
+def venv_interpreter(folder: Path) -> Path:
+    """Where a virtual environment made in `folder` keeps its interpreter on this platform."""
+    return Path(folder) / ("Scripts/python.exe" if os.name == "nt" else "bin/python")
+
+
 def resolve_python(configured: str | None, root: Path, override: str | None = None) -> tuple[str, str]:
     """The interpreter to inspect and how it was chosen: --python, config, the project's .venv, or this one."""
     import sys
@@ -31,7 +39,7 @@ def resolve_python(configured: str | None, root: Path, override: str | None = No
     elif configured:
         candidate, how = configured, "python in the config"
     else:
-        for rel in (".venv/bin/python", ".venv/Scripts/python.exe", "venv/bin/python"):
+        for rel in VENV_INTERPRETERS:
             if (root / rel).exists():
                 return str(root / rel), f"the project's {rel.split('/')[0]}"
         return sys.executable, "the running interpreter"
@@ -45,8 +53,8 @@ def resolve_python(configured: str | None, root: Path, override: str | None = No
                                 "set python = \"...\" in holotype.toml or pass --python PATH")
         path = Path(found)
     if not path.exists():
-        raise HolotypeError(f"target interpreter {path} (from {how}) does not exist; "
-                            "set python = \"...\" in holotype.toml or pass --python PATH")
+        raise HolotypeError(f"target interpreter {path} (from {how}) does not exist; build it from the lock with "
+                            "'holotype recreate DIR', or set python = \"...\" in holotype.toml or pass --python PATH")
     return str(path), how
 
 

@@ -32,11 +32,13 @@ def lock_at_revision(root: Path, rev: str) -> tuple[str, Path]:
 
 
 def diff_files(a: Path, b: Path, policy_root: Path | None = None) -> Report:
+    """Two lockfiles against each other (policy from the project at `policy_root`, if given)."""
     lock_a, lock_b = read_lock(a), read_lock(b)
     policy = load_config(policy_root, required=False).policy if policy_root else {}
     findings = diff_locks(lock_a, lock_b, a.name if a.name != b.name else str(a), b.name if a.name != b.name
                           else str(b))
-    return Report("diff", apply_policy(findings, policy), notes=(f"{a} → {b}",))
+    return Report("diff", apply_policy(findings, policy), notes=(f"{a} → {b}",),
+                  warnings=lock_a.notices + lock_b.notices)
 
 
 def diff_revision(root: Path, rev: str) -> Report:
@@ -46,4 +48,4 @@ def diff_revision(root: Path, rev: str) -> Report:
     new = read_lock(root / LOCK_NAME)
     findings = diff_locks(old, new, rev, "the working copy")
     return Report("diff", apply_policy(findings, load_config(root, required=False).policy),
-                  notes=(f"{LOCK_NAME} at {rev} → working copy",))
+                  notes=(f"{LOCK_NAME} at {rev} → working copy",), warnings=old.notices + new.notices)

@@ -2,51 +2,25 @@
 
 from __future__ import annotations
 
-import hashlib
-import os
-import secrets
 from dataclasses import dataclass, replace
-from datetime import UTC, datetime
 from pathlib import Path
 
 from holotype import __version__
-from holotype.atomic import remove_stale_temps, write_atomic
-from holotype.baselines import STORE_FOLDER, BaselineStore
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
-from holotype.capture.runs import RunProgress, run_each
-from holotype.commands.rerun import failure_finding
-from holotype.config import Config, load_config, run_order
+from holotype.clock import timestamp
+from holotype.compare.runs import failure_finding
+from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Report
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
-from holotype.project_lock import project_lock
-from holotype.records import AnalysisRecord, Lock, OutputRecord
-from holotype.seeds import derive_seed
-
-STORE_GITIGNORE = ("# holotype: the baselines are committed; logs, the busy marker and the last rerun are not\n"
-                   "busy\nlogs/\nlast-rerun.json\n")
-
-
-def timestamp() -> str:
-    """UTC time of the record (SOURCE_DATE_EPOCH wins, for byte-reproducible locks)."""
-    epoch = os.environ.get("SOURCE_DATE_EPOCH")
-    moment = datetime.fromtimestamp(int(epoch), UTC) if epoch and epoch.isdigit() \
-        else datetime.now(UTC)
-    return moment.strftime("%Y-%m-%dT%H:%M:%SZ")
-
-
-def ensure_store(root: Path) -> None:
-    """Create .holotype/ with its .gitignore and clear temp files a killed run left behind."""
-    folder = Path(root) / STORE_FOLDER
-    folder.mkdir(exist_ok=True)
-    ignore = folder / ".gitignore"
-    if not ignore.exists():
-        write_atomic(ignore, STORE_GITIGNORE)
-    remove_stale_temps(Path(root))
-    BaselineStore(root).clean_temps()
+from holotype.records import AnalysisRecord, LockContents, OutputRecord
+from holotype.run.plan import make_plan
+from holotype.run.runner import RunEvents, Runner, SerialRunner
+from holotype.seeds import derive_seed, draw_seed
+from holotype.store import ProjectStore
 
 
 def ensure_seed(config: Config) -> tuple[Config, bool]:
@@ -55,29 +29,30 @@ def ensure_seed(config: Config) -> tuple[Config, bool]:
         return config, False
     if config.source is None:
         raise HolotypeError("no holotype.toml here; run 'holotype start' first", config.root)
-    return replace(config, seed=1 + secrets.randbelow(2**31 - 1)), True
+    return replace(config, seed=draw_seed()), True
 
 
 @dataclass
 class RecordOutcome:
     report: Report
-    written: bool
 
 
-def previous_lock(root: Path) -> Lock | None:
+def _previous_lock(root: Path) -> LockContents | None:
     try:
-        return read_lock(Path(root) / LOCK_NAME)
+        return read_lock(root / LOCK_NAME)
     except LockfileError:
         return None
 
 
 def record_project(root: Path, *, run: bool = True, python: str | None = None,
-                   hash_progress: HashProgress | None = None, run_progress: RunProgress | None = None) -> RecordOutcome:
+                   hash_progress: HashProgress | None = None, run_progress: RunEvents | None = None,
+                   runner: Runner | None = None) -> RecordOutcome:
     """Record the project; on any failure nothing new is written and the report says why."""
     root = Path(root)
     config = load_config(root)
-    with project_lock(root):
-        ensure_store(root)
+    store = ProjectStore(root)
+    with store.one_writer():
+        store.prepare()
         config, new_seed = ensure_seed(config)
         assert config.seed is not None
         capture = capture_project(config, python_override=python, progress=hash_progress)
@@ -87,47 +62,44 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         if capture.unmatched_data:
             raise ConfigError(f"data pattern '{capture.unmatched_data[0]}' matches no file; fix 'data' or add the "
                               "files", config.source)
-        old = previous_lock(root)
+        old = _previous_lock(root)
         analyses: dict[str, AnalysisRecord] = {}
-        store = BaselineStore(root)
+        pending: list[bytes] = []
         if run:
-            pending: list[tuple[str, bytes]] = []
-            ordered = run_order(config.analyses, config.source)
-            for result in run_each(config, capture.python, ordered, config.seed, run_progress):
-                analysis = result.analysis
+            plan = make_plan(config, capture.python, config.select(None), config.seed)
+            for result in (runner or SerialRunner(store)).run(plan, run_progress):
                 if not result.ok:
                     findings.append(failure_finding(result, root))
                     continue
                 outputs = {}
-                for out, data in result.outputs.items():
-                    digest = hashlib.sha256(data).hexdigest()
-                    pending.append((out, data))
-                    outputs[out] = OutputRecord(out, digest, len(data),
+                for out, produced in result.outputs.items():
+                    pending.append(produced.data)
+                    outputs[out] = OutputRecord(out, produced.sha256, produced.size,
                                                 config.rulebook.for_output(out).summary())
-                analyses[analysis.name] = AnalysisRecord(analysis.name, analysis.run, result.seed, outputs,
-                                                         analysis.inputs)
-                findings.append(Finding("analysis", analysis.name, "lockfile.note",
+                analysis = config.analysis(result.name)
+                analyses[result.name] = AnalysisRecord(result.name, result.command, result.seed, outputs,
+                                                       analysis.inputs)
+                findings.append(Finding("analysis", result.name, "lockfile.note",
                                         f"ran in {result.seconds:.1f}s with seed {result.seed}; "
-                                        f"{len(outputs)} output(s) stored"))
+                                        f"{len(outputs)} output(s) captured"))
         elif old is not None:
-            analyses = {name: rec for name, rec in old.analyses.items()
-                        if any(a.name == name for a in config.analyses)}
-            for name, rec in analyses.items():
-                analyses[name] = AnalysisRecord(name, config.analysis(name).run, derive_seed(config.seed, name),
-                                                rec.outputs, config.analysis(name).inputs)
+            for name, rec in old.analyses.items():
+                if any(a.name == name for a in config.analyses):
+                    a = config.analysis(name)
+                    analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
+                                                    a.inputs)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return RecordOutcome(Report("record", report_findings,
                                         notes=("nothing written: the lock and baselines are unchanged",),
-                                        warnings=config.warnings), False)
-        if run:
-            for _out, data in pending:
-                store.put(data)
+                                        warnings=config.warnings))
+        for data in pending:
+            store.baselines.put(data)
         seed_note = None
         if new_seed and config.source is not None:  # written only now that the record succeeded
             add_seed(config.source, config.seed)
             seed_note = f"drew project seed {config.seed} and wrote it to {config.source.name}"
-        lock = Lock(
+        lock = LockContents(
             interpreter=capture.environment.interpreter,
             platform=capture.environment.platform,
             packages=capture.environment.packages,
@@ -145,4 +117,4 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
     notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
                  f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
                  f"{len(lock.analyses)} analyses")
-    return RecordOutcome(Report("record", report_findings, notes=tuple(notes), warnings=config.warnings), True)
+    return RecordOutcome(Report("record", report_findings, notes=tuple(notes), warnings=config.warnings))

@@ -1,92 +1,65 @@
-"""`holotype report`: a methods and provenance appendix for a thesis or paper, from the lock and the last rerun."""
+"""`holotype report`: a methods and provenance appendix for a thesis or paper, from the lock and the last replay."""
 
 from __future__ import annotations
 
-import json
-from dataclasses import dataclass, field
+from fnmatch import fnmatchcase
 from pathlib import Path
 from typing import Any
 
-from holotype.baselines import STORE_FOLDER
-from holotype.config import Config, load_config
+from holotype.appendix import OutputLine, Provenance
+from holotype.config import load_config
+from holotype.findings.summary import summary_line
 from holotype.lockfile import LOCK_NAME, read_lock
-from holotype.records import Lock
-
-CAUTION = ("A reproduced number is not a correct number: holotype shows that these results did not drift "
-           "beyond the stated tolerances when re-run, not that the analysis is sound. The lab's own data "
-           "policies and ethics approvals still govern what may be recorded and shared.")
+from holotype.store import ProjectStore
+from holotype.tolerance import RuleBook, Tolerance
 
 
-@dataclass
-class OutputLine:
-    analysis: str
-    path: str
-    sha256: str
-    size: int
-    tolerance: str
-    result: str = "not rerun yet"
-    max_rel_err: float | None = None
-    rtol: float | None = None
-    ok: bool | None = None
-
-
-@dataclass
-class Provenance:
-    """Everything the appendix states, gathered once; renderers only lay it out."""
-
-    lock: Lock
-    config: Config
-    outputs: list[OutputLine] = field(default_factory=list)
-    last_rerun_when: str | None = None
-    last_rerun_ok: bool | None = None
-
-
-def _tolerance_text(tol: dict[str, Any]) -> str:
-    parts = ["sign-free" if v is True else f"{k}={v:g}" if isinstance(v, float) else f"{k}={v}"
-             for k, v in sorted(tol.items()) if v is not False]
-    return ", ".join(parts) or "exact"
+def tolerance_text(rules: RuleBook, output: str, recorded: dict[str, Any]) -> str:
+    """The criteria that judged `output`: the recorded whole-output tolerance, then column rules that match it."""
+    text = Tolerance.from_summary(recorded).describe() if recorded else rules.for_output(output).describe()
+    columns = [f"{r.column_glob}: {rules.default.overlay(r.settings).describe()}"
+               for r in rules.rules if r.column_glob is not None and fnmatchcase(output, r.output_glob)]
+    return text + ("; " + "; ".join(columns) if columns else "")
 
 
 def gather_provenance(root: Path) -> Provenance:
     root = Path(root)
     lock = read_lock(root / LOCK_NAME)
     config = load_config(root, required=False)
-    prov = Provenance(lock, config)
-    last: dict[str, Any] = {}
-    try:
-        last = json.loads((root / STORE_FOLDER / "last-rerun.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        last = {}
-    by_output = {f.get("subject"): f for f in last.get("findings", []) if f.get("area") == "output"}
-    failed_analyses = {f.get("subject"): f for f in last.get("findings", []) if f.get("kind") == "analysis.failed"}
+    prov = Provenance(lock, threads=config.threads, seed_globals=config.seed_globals)
+    last = ProjectStore(root).last_replay()
+    found = [f for f in last.get("findings", []) if isinstance(f, dict)]
+    by_output = {f.get("subject"): f for f in found if f.get("area") == "output"}
+    failed_analyses = {f.get("subject") for f in found if f.get("kind") == "analysis.failed"}
     if last:
-        prov.last_rerun_when = str(last.get("when", ""))
-        prov.last_rerun_ok = bool(last.get("ok"))
+        counts = {s: sum(1 for f in found if f.get("severity") == s) for s in ("fail", "warn", "info")}
+        prov.last_replay_when = str(last.get("when", ""))
+        prov.last_replay_ok = counts["fail"] == 0
+        prov.last_replay_summary = summary_line("replay", counts)
     for name in sorted(lock.analyses):
         rec = lock.analyses[name]
         for out in sorted(rec.outputs):
             o = rec.outputs[out]
-            line = OutputLine(name, out, o.sha256, o.size, _tolerance_text(o.tolerance),
-                              rtol=o.tolerance.get("rtol") if isinstance(o.tolerance.get("rtol"), float) else None)
+            rtol = o.tolerance.get("rtol")
+            line = OutputLine(name, out, o.sha256, o.size, tolerance_text(config.rulebook, out, o.tolerance),
+                              rtol=rtol if isinstance(rtol, float) else None)
             f = by_output.get(out)
             if name in failed_analyses:
-                line.result, line.ok = "analysis failed in the last rerun", False
+                line.result, line.ok = "analysis failed in the last replay", False
             elif f is not None:
                 line.ok = f.get("severity") != "fail"
                 line.result = str(f.get("message", ""))
+                line.by_bytes = f.get("tolerance") == "byte-equal"
                 err = f.get("max_rel_err")
-                line.max_rel_err = float(err) if isinstance(err, (int, float)) else (
-                    float("inf") if err == "inf" else None)
+                if not line.by_bytes:
+                    line.max_rel_err = float(err) if isinstance(err, (int, float)) else (
+                        float("inf") if err == "inf" else None)
             prov.outputs.append(line)
     return prov
 
 
 def build_report(root: Path, fmt: str = "markdown") -> str:
-    prov = gather_provenance(root)
-    if fmt == "html":
-        from holotype.render.methods_html import render_methods_html
+    """The appendix as Markdown or one self-contained HTML file."""
+    from holotype.render import appendix_renderer
 
-        return render_methods_html(prov)
-    from holotype.render.methods_markdown import render_methods_markdown
-
-    return render_methods_markdown(prov)
+    return appendix_renderer(fmt)(gather_provenance(root))

@@ -2,12 +2,13 @@
 
 from __future__ import annotations
 
-import secrets
 from pathlib import Path
 
 from holotype.atomic import write_atomic
+from holotype.capture.environment import VENV_INTERPRETERS
 from holotype.config import CONFIG_NAME
 from holotype.errors import HolotypeError
+from holotype.seeds import draw_seed
 
 DATA_FOLDER_NAMES = ("data", "raw", "raw_data", "input", "inputs", "dataset", "datasets")
 ANALYSIS_FOLDER_NAMES = ("analysis", "analyses", "scripts", "notebooks", "src")
@@ -21,7 +22,7 @@ def starter_config(root: Path, seed: int) -> str:
     """The text of a starter holotype.toml for the folder at `root`."""
     lines = ["# holotype configuration: what to record and how closely re-runs must match.",
              "# Reference: docs/configuration.md in holotype's documentation.", ""]
-    for rel in (".venv/bin/python", ".venv/Scripts/python.exe"):
+    for rel in VENV_INTERPRETERS:
         if (root / rel).exists():
             lines.append(f"python = {_toml_str(rel)}  # the analysis environment")
             break
@@ -54,10 +55,10 @@ def starter_config(root: Path, seed: int) -> str:
     for script in scripts[:20]:
         rel = script.relative_to(root).as_posix()
         name = script.stem.replace(" ", "_")
-        lines += ["", f"# [analyses.{name}]", f'# run = "python {rel}"',
+        lines += ["", f"# [analyses.{name}]", f'# command = "python {rel}"',
                   '# outputs = ["results/..."]   # the files this script writes']
     if not scripts:
-        lines += ["", "# [analyses.summary]", '# run = "python analysis/summary.py"',
+        lines += ["", "# [analyses.summary]", '# command = "python analysis/summary.py"',
                   '# outputs = ["results/summary.csv"]']
     return "\n".join(lines) + "\n"
 
@@ -69,5 +70,5 @@ def start_project(root: Path) -> Path:
         raise HolotypeError("project folder does not exist", root)
     if target.exists():
         raise HolotypeError("already exists; holotype start never overwrites it", target)
-    write_atomic(target, starter_config(Path(root), 1 + secrets.randbelow(2**31 - 1)))
+    write_atomic(target, starter_config(Path(root), draw_seed()))
     return target

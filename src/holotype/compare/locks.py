@@ -5,10 +5,10 @@ from __future__ import annotations
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
 from holotype.compare.files import compare_file_sets
 from holotype.findings import Finding
-from holotype.records import Lock
+from holotype.records import LockContents
 
 
-def diff_locks(a: Lock, b: Lock, a_name: str = "A", b_name: str = "B") -> list[Finding]:
+def diff_locks(a: LockContents, b: LockContents, a_name: str = "A", b_name: str = "B") -> list[Finding]:
     """Interpreter, platform, packages, data, code, seeds and baselines that differ from `a` to `b`."""
     findings: list[Finding] = []
     findings += compare_interpreter(a.interpreter, b.interpreter)
@@ -26,11 +26,11 @@ def diff_locks(a: Lock, b: Lock, a_name: str = "A", b_name: str = "B") -> list[F
         if old is None or new is None:
             where = b_name if old is None else a_name
             findings.append(Finding("analysis", name, "analysis.changed", f"recorded only in {where}",
-                                    None if old is None else old.run, None if new is None else new.run))
+                                    None if old is None else old.command, None if new is None else new.command))
             continue
-        if old.run != new.run:
-            findings.append(Finding("analysis", name, "analysis.changed", f"command '{old.run}' → '{new.run}'",
-                                    old.run, new.run))
+        if old.command != new.command:
+            findings.append(Finding("analysis", name, "analysis.changed", f"command '{old.command}' → '{new.command}'",
+                                    old.command, new.command))
         if old.seed != new.seed:
             findings.append(Finding("seed", name, "seed.changed", f"seed {old.seed} → {new.seed}", old.seed, new.seed))
         for out in sorted(set(old.outputs) | set(new.outputs)):
@@ -48,5 +48,5 @@ def diff_locks(a: Lock, b: Lock, a_name: str = "A", b_name: str = "B") -> list[F
     if len(b.history) > len(a.history):
         for entry in b.history[len(a.history):]:
             findings.append(Finding("lockfile", "history", "lockfile.note",
-                                    f"accepted {entry.when} by {entry.who}: {entry.reason}"))
+                                    f"adopted {entry.when} by {entry.who}: {entry.reason}"))
     return findings

@@ -14,7 +14,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from holotype.compare.tolerance import Tolerance
+from holotype.tolerance import Tolerance
 
 # log10(2**53): binary64 holds at most this many correct significant digits; an exact match scores it.
 MAX_LRE = 15.95

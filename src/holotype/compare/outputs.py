@@ -4,49 +4,16 @@ from __future__ import annotations
 
 import math
 import os
-from collections.abc import Callable
 from pathlib import Path
 
-from holotype.compare.source import Source, UnreadableOutput
-from holotype.compare.tables import TableOutcome, compare_tables
+from holotype.compare import formats
+from holotype.compare.outcome import Outcome
+from holotype.compare.source import Source
 from holotype.compare.tally import Tally
-from holotype.compare.tolerance import RuleBook
+from holotype.errors import UnreadableOutput
 from holotype.findings import Finding, OutputStats
-
-Comparer = Callable[[str, Source, Source, RuleBook], TableOutcome]
-
-
-def _arrays(output: str, e: Source, a: Source, rules: RuleBook) -> TableOutcome:
-    from holotype.compare.arrays import compare_arrays
-
-    return compare_arrays(output, e, a, rules)
-
-
-def _json(output: str, e: Source, a: Source, rules: RuleBook) -> TableOutcome:
-    from holotype.compare.jsondoc import compare_json
-
-    return compare_json(output, e, a, rules)
-
-
-def _text(output: str, e: Source, a: Source, rules: RuleBook) -> TableOutcome:
-    from holotype.compare.text import compare_text
-
-    return compare_text(output, e, a, rules)
-
-
-def _parquet(output: str, e: Source, a: Source, rules: RuleBook) -> TableOutcome:
-    from holotype.compare.parquet import compare_parquet
-
-    return compare_parquet(output, e, a, rules)
-
-
-FORMATS: dict[str, Comparer] = {
-    ".csv": compare_tables, ".tsv": compare_tables, ".tab": compare_tables,
-    ".json": _json,
-    ".npy": _arrays, ".npz": _arrays,
-    ".txt": _text, ".log": _text, ".out": _text, ".text": _text,
-    ".parquet": _parquet, ".pq": _parquet,
-}
+from holotype.phrasing import listed
+from holotype.tolerance import RuleBook
 
 
 def _fmt(x: float) -> str:
@@ -59,11 +26,11 @@ def _value(v: object) -> str:
     return repr(v) if isinstance(v, str) else str(v)
 
 
-def findings_from_outcome(output: str, outcome: TableOutcome) -> list[Finding]:
+def findings_from_outcome(output: str, outcome: Outcome) -> list[Finding]:
     """One finding for the output's values, plus one per shape problem and layout note."""
     findings: list[Finding] = []
-    for kind, message, expected, actual in outcome.problems:
-        findings.append(Finding("output", output, kind, message, expected, actual))
+    for p in outcome.problems:
+        findings.append(Finding("output", output, p.kind, p.message, p.expected, p.actual))
     for note in outcome.notes:
         findings.append(Finding("output", output, "output.layout", note))
     if not outcome.tallies:
@@ -82,7 +49,7 @@ def findings_from_outcome(output: str, outcome: TableOutcome) -> list[Finding]:
     flip_text = f"; sign flipped as a whole in {', '.join(flipped)} (allowed: sign-free)" if flipped else ""
     if total.mismatches:
         failing = [t for t in outcome.tallies if t.mismatches]
-        where = ", ".join(t.name for t in failing[:4]) + (f" and {len(failing) - 4} more" if len(failing) > 4 else "")
+        where = listed((t.name for t in failing), 4)
         message = (f"{total.mismatches:,} of {total.compared:,} values outside tolerance (in {where}); "
                    f"worst at {total.worst_where}: {_value(total.worst_expected)} recorded, "
                    f"{_value(total.worst_actual)} found; max abs err {_fmt(total.max_abs)}, "
@@ -101,13 +68,18 @@ def compare_sources(output: str, expected: Source, actual: Source, rules: RuleBo
     if expected.sha256() == actual.sha256():
         return [Finding("output", output, "output.match", "identical bytes",
                         stats=OutputStats(tolerance=rules.for_output(output).describe()))]
-    suffix = os.path.splitext(output)[1].lower()
-    comparer = FORMATS.get(suffix)
+    comparer = formats.for_output(output)
     if comparer is None:
         return [Finding("output", output, "output.mismatch",
                         "bytes differ (no numeric reader for this format; compared by SHA-256)",
-                        expected.sha256(), actual.sha256(), stats=OutputStats(compared=1, mismatches=1))]
-    return findings_from_outcome(output, comparer(output, expected, actual, rules))
+                        expected.sha256(), actual.sha256(),
+                        stats=OutputStats(compared=1, mismatches=1, tolerance="byte-equal"))]
+    refused = formats.refused_keys(comparer, output, rules)
+    if refused:
+        return [Finding("output", output, "output.rule",
+                        f"the rule key(s) {', '.join(refused)} cannot apply to {comparer.name} outputs; remove them "
+                        "from the rules that match this output (nothing was compared)", refused, None)]
+    return findings_from_outcome(output, comparer.compare(output, expected, actual, rules))
 
 
 def _files_under(folder: Path) -> dict[str, Path]:
@@ -121,9 +93,10 @@ def _files_under(folder: Path) -> dict[str, Path]:
     return out
 
 
-def compare_paths(expected: Path, actual: Path, rules: RuleBook,
-                  on_unreadable: Callable[[UnreadableOutput], list[Finding]] | None = None) -> list[Finding]:
-    """Two files, or two folders paired by relative path (unpaired files are findings)."""
+def compare_paths(expected: Path, actual: Path, rules: RuleBook) -> list[Finding]:
+    """Two files, or two folders paired by relative path (unpaired files are findings).
+
+    A file that cannot be parsed raises UnreadableOutput (exit 2 for `compare`)."""
     if expected.is_dir() and actual.is_dir():
         e_files, a_files = _files_under(expected), _files_under(actual)
         findings: list[Finding] = []
@@ -133,17 +106,16 @@ def compare_paths(expected: Path, actual: Path, rules: RuleBook,
             elif rel not in e_files:
                 findings.append(Finding("output", rel, "output.extra", f"only in {actual}", None, rel))
             else:
-                findings += _compare_one(rel, e_files[rel], a_files[rel], rules, on_unreadable)
+                findings += compare_sources(rel, Source.from_path(e_files[rel], rel),
+                                            Source.from_path(a_files[rel], rel), rules)
         return findings
     name = actual.name if expected.name != actual.name else expected.name
-    return _compare_one(name, expected, actual, rules, on_unreadable)
+    return compare_sources(name, Source.from_path(expected, name), Source.from_path(actual, name), rules)
 
 
-def _compare_one(name: str, e: Path, a: Path, rules: RuleBook,
-                 on_unreadable: Callable[[UnreadableOutput], list[Finding]] | None) -> list[Finding]:
+def compare_or_unreadable(output: str, expected: Source, actual: Source, rules: RuleBook) -> list[Finding]:
+    """For results being judged (replay, twice): an unparsable output is a failing finding, not an exit 2."""
     try:
-        return compare_sources(name, Source.from_path(e, name), Source.from_path(a, name), rules)
+        return compare_sources(output, expected, actual, rules)
     except UnreadableOutput as exc:
-        if on_unreadable is None:
-            raise
-        return on_unreadable(exc)
+        return [Finding("output", output, "output.unreadable", f"{exc.label}: {exc.reason}")]

@@ -4,18 +4,13 @@ from __future__ import annotations
 
 import hashlib
 import io
+import os
+import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-
-class UnreadableOutput(Exception):
-    """A compared file cannot be parsed in its format; `label` names it."""
-
-    def __init__(self, message: str, label: str) -> None:
-        self.label = label
-        self.message = message
-        super().__init__(f"{label}: {message}")
+from holotype.errors import UnreadableOutput
 
 
 @dataclass(frozen=True)
@@ -27,7 +22,19 @@ class Source:
 
     @classmethod
     def from_path(cls, path: Path, name: str | None = None) -> Source:
-        return cls(name or Path(path).name, str(path), path=Path(path))
+        """A file to compare. A pipe (`<(zcat baseline)`) can be read only once, so it is read now."""
+        name = name or Path(path).name
+        try:
+            mode = os.stat(path).st_mode
+        except OSError as exc:
+            raise UnreadableOutput(f"cannot read: {exc.strerror}", str(path)) from None
+        if not stat.S_ISREG(mode):
+            try:
+                with open(path, "rb") as fh:
+                    return cls(name, str(path), data=fh.read())
+            except OSError as exc:
+                raise UnreadableOutput(f"cannot read: {exc.strerror}", str(path)) from None
+        return cls(name, str(path), path=Path(path))
 
     @classmethod
     def from_bytes(cls, data: bytes, name: str, label: str) -> Source:

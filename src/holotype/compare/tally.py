@@ -9,7 +9,8 @@ from typing import Any
 import numpy as np
 
 from holotype.compare.numbers import MAX_LRE, Verdict, log_relative_error
-from holotype.compare.tolerance import Tolerance
+from holotype.findings import json_number
+from holotype.tolerance import Tolerance
 
 EXAMPLES_KEPT = 5
 
@@ -134,14 +135,11 @@ class Tally:
             "name": self.name,
             "compared": self.compared,
             "mismatches": self.mismatches,
-            "max_abs_err": _json_number(self.max_abs),
-            "max_rel_err": _json_number(self.max_rel),
+            "max_abs_err": json_number(self.max_abs),
+            "max_rel_err": json_number(self.max_rel),
             "min_lre": round(self.min_lre, 2),
             "tolerance": self.tolerance.describe(),
             "worst": self.worst_where,
             "sign_flipped": self.sign_flipped,
         }
 
-
-def _json_number(x: float) -> float | str:
-    return x if math.isfinite(x) else "inf"

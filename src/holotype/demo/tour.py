@@ -1,4 +1,4 @@
-"""`holotype demo`: write the invented lake-survey project and walk through record, check, rerun and three events."""
+"""`holotype demo`: write the invented lake-survey project and walk through record, check, replay and three events."""
 
 from __future__ import annotations
 
@@ -16,7 +16,7 @@ from rich.text import Text
 from holotype.atomic import write_atomic
 from holotype.commands.check import check_project
 from holotype.commands.record import record_project
-from holotype.commands.rerun import rerun_project
+from holotype.commands.replay import replay_project
 from holotype.demo.scenario import survey_csv
 from holotype.errors import HolotypeError
 from holotype.findings import Report
@@ -46,17 +46,17 @@ match = "results/pca_scores.npy"
 sign_free = true
 
 [analyses.summary]
-run = "python analysis/summary.py"
+command = "python analysis/summary.py"
 outputs = ["results/summary.csv"]
 inputs = ["data/lakes.csv"]
 
 [analyses.tests]
-run = "python analysis/tests.py"
+command = "python analysis/tests.py"
 outputs = ["results/tests.json"]
 inputs = ["data/lakes.csv"]
 
 [analyses.pca]
-run = "python analysis/pca.py"
+command = "python analysis/pca.py"
 outputs = ["results/pca_loadings.csv", "results/pca_variance.csv", "results/pca_scores.npy"]
 inputs = ["data/lakes.csv"]
 """
@@ -75,7 +75,7 @@ def write_demo_project(folder: Path) -> None:
         write_atomic(folder / "analysis" / f"{name}.py", text)
     write_atomic(folder / "holotype.toml", CONFIG)
     write_atomic(folder / "README.txt", "An invented freshwater lake survey (all values made up) set up as a "
-                                        "holotype project.\nTry: holotype check, holotype rerun, holotype report\n")
+                                        "holotype project.\nTry: holotype check, holotype replay, holotype report\n")
 
 
 class Tour:
@@ -115,13 +115,13 @@ class Tour:
         self.show(outcome.report, show_info=True)
         self.expect(outcome.report, True, "a clean record")
 
-        self.step(3, "Check and rerun, clean", "check compares the project with holotype.lock, running nothing; "
-                                               "rerun runs every analysis again and compares each output value "
+        self.step(3, "Check and replay, clean", "check compares the project with holotype.lock, running nothing; "
+                                               "replay runs every analysis again and compares each output value "
                                                "by value with its baseline.")
         self.show(check_project(folder, python=self.python))
-        report = rerun_project(folder, python=self.python)
+        report = replay_project(folder, python=self.python)
         self.show(report, show_info=True)
-        self.expect(report, True, "a clean rerun")
+        self.expect(report, True, "a clean replay")
 
         data = folder / "data" / "lakes.csv"
         original = data.read_bytes()
@@ -147,12 +147,12 @@ class Tour:
                   "Eigenvectors are defined only up to sign, and another linear-algebra build may return PC2 "
                   "as -PC2. The project's sign_free rules let a whole column flip (never single values):")
         pca.write_text(pca_text.replace(SIGN_FLIP, SIGN_FLIP_AFTER))
-        report = rerun_project(folder, ["pca"], python=self.python)
+        report = replay_project(folder, ["pca"], python=self.python)
         self.show(report, show_info=True)
-        self.expect(report, True, "the sign-free rule to accept the flipped column")
+        self.expect(report, True, "the sign-free rule to allow the flipped column")
         self.console.print("Without the sign_free rules the same run fails:", highlight=False)
         config.write_text(config_text.replace("sign_free = true", "sign_free = false"))
-        report = rerun_project(folder, ["pca"], python=self.python)
+        report = replay_project(folder, ["pca"], python=self.python)
         self.show(report)
         self.expect(report, False, "the flip to fail without sign_free")
         config.write_text(config_text)
@@ -161,9 +161,9 @@ class Tour:
 
         self.step(6, "Event: someone changes the project seed",
                   "The permutation p-value is a Monte Carlo estimate: with another seed it moves, and at the "
-                  "project's tight tolerance rerun says exactly where and by how much.")
+                  "project's tight tolerance replay says exactly where and by how much.")
         config.write_text(config_text.replace(f"seed = {PROJECT_SEED}", f"seed = {PROJECT_SEED + 1}"))
-        report = rerun_project(folder, ["tests"], python=self.python)
+        report = replay_project(folder, ["tests"], python=self.python)
         self.show(report)
         self.expect(report, False, "the moved p-value to fail")
         recorded = json.loads(_baseline_of(folder, "results/tests.json"))["permutation"]["p_value"]
@@ -173,19 +173,19 @@ class Tour:
                            "tolerance rule for that one value if you mean to compare across seeds.",
                            highlight=False)
         config.write_text(config_text)
-        rerun_project(folder, ["tests"], python=self.python)  # put the tests' outputs back as recorded
+        replay_project(folder, ["tests"], python=self.python)  # put the tests' outputs back as recorded
         self.console.print("Restored the seed.", style="dim")
 
         self.step(7, "Back to clean", "The project is as recorded again:")
         final_check = check_project(folder, python=self.python)
-        final_rerun = rerun_project(folder, python=self.python)
+        final_replay = replay_project(folder, python=self.python)
         self.show(final_check)
-        self.show(final_rerun)
+        self.show(final_replay)
         self.expect(final_check, True, "a clean final check")
-        self.expect(final_rerun, True, "a clean final rerun")
+        self.expect(final_replay, True, "a clean final replay")
         self.console.print()
         self.console.print(f"Done in {time.monotonic() - started:.0f}s. Try next, in {folder}:", style="bold")
-        for cmd in ("holotype check --format json", "holotype rerun --twice", "holotype report --format html "
+        for cmd in ("holotype check --format json", "holotype replay --twice", "holotype report --format html "
                     "--output methods.html", "holotype compare results/summary.csv results/summary.csv --rtol 1e-6"):
             self.console.print(f"  {cmd}", highlight=False)
         self.console.print("A reproduced number is not a verified one: holotype shows that results did not "
@@ -193,8 +193,8 @@ class Tour:
 
 
 def _baseline_of(folder: Path, output: str) -> bytes:
-    from holotype.baselines import BaselineStore
     from holotype.lockfile import LOCK_NAME, read_lock
+    from holotype.store import BaselineStore
 
     lock = read_lock(folder / LOCK_NAME)
     for rec in lock.analyses.values():

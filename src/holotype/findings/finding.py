@@ -56,8 +56,8 @@ class Finding:
             out.update(
                 compared=s.compared,
                 mismatches=s.mismatches,
-                max_abs_err=_finite_or_text(s.max_abs_err),
-                max_rel_err=_finite_or_text(s.max_rel_err),
+                max_abs_err=json_number(s.max_abs_err),
+                max_rel_err=json_number(s.max_rel_err),
                 worst=s.worst,
                 min_lre=s.min_lre,
                 tolerance=s.tolerance,
@@ -67,8 +67,8 @@ class Finding:
         return out
 
 
-def _finite_or_text(x: float) -> float | str:
-    # JSON has no inf/nan; keep the meaning as text
+def json_number(x: float) -> float | str:
+    """A float for JSON, which has no inf or nan: those keep their meaning as text."""
     if x != x:
         return "nan"
     if x in (float("inf"), float("-inf")):
@@ -82,9 +82,9 @@ class Report:
 
     command: str
     findings: tuple[Finding, ...]
-    title: str = ""
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()  # about the config itself (unknown keys, precedence): printed on stderr
+    verdict: bool = True  # False for a plan (a dry run): it says what would happen, not whether it reproduced
 
     @property
     def ok(self) -> bool:

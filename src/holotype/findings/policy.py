@@ -11,6 +11,7 @@ from collections.abc import Iterable
 from holotype.findings.finding import Finding
 
 SEVERITIES = ("fail", "warn", "info")
+SEVERITY_ORDER = {s: i for i, s in enumerate(SEVERITIES)}
 
 DEFAULT_SEVERITY: dict[str, str] = {
     # interpreter and platform

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 from holotype.findings import Report
-from holotype.render.terminal import SEVERITY_ORDER
+from holotype.findings.policy import SEVERITY_ORDER
+from holotype.findings.summary import summary_line
 
 ICON = {"fail": "❌ fail", "warn": "⚠️ warn", "info": "ℹ️ info"}
 
@@ -15,10 +16,9 @@ def cell(text: object) -> str:
 
 
 def render_markdown(report: Report) -> str:
-    counts = report.counts()
-    verdict = "✅ no failures" if report.ok else f"❌ {counts['fail']} failure(s)"
-    lines = [f"### holotype {report.command}: {verdict}", "",
-             f"{counts['fail']} failed · {counts['warn']} warnings · {counts['info']} notes", ""]
+    summary = summary_line(report.command, report.counts(), verdict=report.verdict)
+    mark = "" if not report.verdict else "✅ " if report.ok else "❌ "
+    lines = [f"### holotype {report.command}", "", f"**{mark}{cell(summary)}**", ""]
     rows = sorted(report.findings, key=lambda f: (SEVERITY_ORDER[f.severity], f.area, f.subject))
     if rows:
         lines += ["| | area | subject | finding |", "|---|---|---|---|"]

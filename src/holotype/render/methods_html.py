@@ -6,7 +6,8 @@ import math
 from html import escape
 
 from holotype import __version__
-from holotype.commands.report import CAUTION, OutputLine, Provenance
+from holotype.appendix import CAUTION, OutputLine, Provenance
+from holotype.render.methods_markdown import run_settings
 
 STYLE = """
 body { font-family: Georgia, 'Times New Roman', serif; max-width: 52em; margin: 2em auto; color: #111;
@@ -19,6 +20,17 @@ code { font-size: 0.85em; word-break: break-all }
 """
 
 LOW, HIGH = -17, 1  # decades shown on the error axis
+
+
+def short_label(path: str, width: int = 34) -> str:
+    """A path that fits the chart's label column: the file name kept whole, folders shortened in the middle."""
+    if len(path) <= width:
+        return path
+    head, _, name = path.rpartition("/")
+    if len(name) + 2 >= width or not head:
+        return name[: width - 1] + "…" if len(name) > width else name
+    room = width - len(name) - 2
+    return head[:room] + "…/" + name
 
 
 class ErrorChart:
@@ -48,14 +60,17 @@ class ErrorChart:
             parts.append(f'<text x="{x:.1f}" y="{height - 2}" font-size="9" text-anchor="middle">1e{d}</text>')
         for i, line in enumerate(self.lines):
             y = 34 + i * row
-            parts.append(f'<text x="4" y="{y + 4}" font-size="10">{escape(line.path[-34:])}</text>')
+            parts.append(f'<text x="4" y="{y + 4}" font-size="10"><title>{escape(line.path)}</title>'
+                         f'{escape(short_label(line.path))}</text>')
             if line.rtol:
                 tx = self._x(line.rtol, left, width)
                 parts.append(f'<line x1="{tx:.1f}" y1="{y - 8}" x2="{tx:.1f}" y2="{y + 8}" stroke="#000" '
                              'stroke-width="2"/>')
             if line.max_rel_err is None:
+                text = ("byte for byte: " + ("identical" if line.ok else "bytes differ")) if line.by_bytes \
+                    else line.result[:60]
                 parts.append(f'<text x="{left}" y="{y + 4}" font-size="10" font-style="italic">'
-                             f'{escape(line.result[:60])}</text>')
+                             f'{escape(text)}</text>')
                 continue
             x = self._x(line.max_rel_err, left, width) if math.isfinite(line.max_rel_err) else left + width
             shape = (f'<circle cx="{x:.1f}" cy="{y}" r="4" fill="#000"/>' if line.ok else
@@ -99,15 +114,16 @@ def render_methods_html(prov: Provenance) -> str:
              "SHA-256 of &quot;&lt;project seed&gt;/&lt;analysis name&gt;&quot;.</p>",
              _table(["analysis", "seed"], [[escape(n), str(r.seed)] for n, r in sorted(lock.analyses.items())]),
              "<h2>Analyses and results</h2>"]
-    if prov.last_rerun_when:
-        verdict = "all outputs reproduced within tolerance" if prov.last_rerun_ok else "NOT reproduced"
-        parts.append(f"<p>Latest rerun: {escape(prov.last_rerun_when)}: {verdict}.</p>")
+    parts.append("<h2>Run settings</h2><ul>" + "".join(f"<li>{escape(x)}</li>" for x in run_settings(prov))
+                 + "</ul>")
+    if prov.last_replay_when:
+        parts.append(f"<p>Latest replay: {escape(prov.last_replay_text)}.</p>")
     else:
-        parts.append("<p>No rerun has been recorded on this machine yet.</p>")
+        parts.append("<p>No replay has been recorded on this machine yet.</p>")
     for name in sorted(lock.analyses):
         lines = [line for line in prov.outputs if line.analysis == name]
-        parts.append(f"<h3>{escape(name)}</h3><p><code>{escape(lock.analyses[name].run)}</code></p>")
-        parts.append(_table(["output", "SHA-256", "tolerance", "latest rerun"],
+        parts.append(f"<h3>{escape(name)}</h3><p><code>{escape(lock.analyses[name].command)}</code></p>")
+        parts.append(_table(["output", "SHA-256", "tolerance", "latest replay"],
                             [[f"<code>{escape(line.path)}</code>", f"<code>{line.sha256[:16]}…</code>",
                               escape(line.tolerance), escape(line.result)] for line in lines]))
         if lines:

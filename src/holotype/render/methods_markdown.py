@@ -3,8 +3,17 @@
 from __future__ import annotations
 
 from holotype import __version__
-from holotype.commands.report import CAUTION, Provenance
+from holotype.appendix import CAUTION, Provenance
 from holotype.render.markdown import cell
+
+
+def run_settings(prov: Provenance) -> list[str]:
+    """The settings that shaped every run, in words (shared with the HTML appendix)."""
+    threads = (f"BLAS/OpenMP threads pinned to {prov.threads} in every analysis" if prov.threads is not None
+               else "BLAS/OpenMP threads not pinned (threads is not set)")
+    globals_ = ("global generators of random and NumPy seeded at start-up (seed_globals = true)" if prov.seed_globals
+                else "global generators not seeded by holotype (seed_globals = false)")
+    return [threads, globals_]
 
 
 def render_methods_markdown(prov: Provenance) -> str:
@@ -30,13 +39,13 @@ def render_methods_markdown(prov: Provenance) -> str:
     out += ["", "## Seeds", "", f"Project seed: {lock.project_seed}. Each analysis seed is the first four bytes "
             "(big-endian) of SHA-256 of \"<project seed>/<analysis name>\".", ""]
     out += [f"- {cell(name)}: {rec.seed}" for name, rec in sorted(lock.analyses.items())]
+    out += ["", "## Run settings", ""] + [f"- {cell(line)}" for line in run_settings(prov)]
     out += ["", "## Analyses and results", ""]
-    if prov.last_rerun_when:
-        verdict = "all outputs reproduced within tolerance" if prov.last_rerun_ok else "NOT reproduced"
-        out.append(f"Latest rerun: {prov.last_rerun_when}: {verdict}.")
+    if prov.last_replay_when:
+        out.append(f"Latest replay: {cell(prov.last_replay_text)}.")
     else:
-        out.append("No rerun has been recorded on this machine yet (run `holotype rerun`).")
-    out += ["", "| analysis | output | SHA-256 | tolerance | latest rerun |", "|---|---|---|---|---|"]
+        out.append("No replay has been recorded on this machine yet (run `holotype replay`).")
+    out += ["", "| analysis | output | SHA-256 | tolerance | latest replay |", "|---|---|---|---|---|"]
     for line in prov.outputs:
         out.append(f"| {cell(line.analysis)} | `{cell(line.path)}` | `{line.sha256[:16]}…` | {cell(line.tolerance)} | "
                    f"{cell(line.result)} |")

@@ -7,8 +7,9 @@ from rich.table import Table
 from rich.text import Text
 
 from holotype.findings import Finding, Report
+from holotype.findings.policy import SEVERITY_ORDER
+from holotype.findings.summary import summary_line, verdict_word
 
-SEVERITY_ORDER = {"fail": 0, "warn": 1, "info": 2}
 SEVERITY_STYLE = {"fail": "bold red", "warn": "yellow", "info": "dim"}
 SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
 
@@ -51,13 +52,11 @@ class FindingsTable:
         return Group(*parts)
 
     def verdict(self) -> Text:
-        c = self.report.counts()
-        summary = f"{c['fail']} failed, {c['warn']} warnings, {c['info']} notes"
-        if self.report.ok:
-            word = {"compare": "match", "rerun": "reproduced"}.get(self.report.command, "ok")
-            return Text.assemble((f"{word}: ", "bold green"), summary)
-        word = {"compare": "differ", "rerun": "not reproduced"}.get(self.report.command, "not ok")
-        return Text.assemble((f"{word}: ", "bold red"), summary)
+        line = summary_line(self.report.command, self.report.counts(), verdict=self.report.verdict)
+        if not self.report.verdict:
+            return Text(line, style="bold")
+        word = verdict_word(self.report.command, self.report.ok)
+        return Text.assemble((word, "bold green" if self.report.ok else "bold red"), line[len(word):])
 
 
 def _num(x: object) -> str:
@@ -105,3 +104,12 @@ def decade_line(f: Finding) -> str:
 
 def print_report(console: Console, report: Report, *, show_info: bool = True) -> None:
     console.print(FindingsTable(report, show_info=show_info))
+
+
+def render_text(report: Report) -> str:
+    """The human table as plain text (for --output FILE.txt): wide, so paths are never cut."""
+    import io
+
+    console = Console(record=True, width=200, no_color=True, file=io.StringIO())
+    print_report(console, report)
+    return console.export_text()

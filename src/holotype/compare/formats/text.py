@@ -6,9 +6,12 @@ import re
 
 import numpy as np
 
-from holotype.compare.source import Source, UnreadableOutput
-from holotype.compare.tables import ColumnJudge, TableOutcome
-from holotype.compare.tolerance import RuleBook
+from holotype.compare.formats import register
+from holotype.compare.judge import ColumnJudge
+from holotype.compare.outcome import Outcome
+from holotype.compare.source import Source
+from holotype.errors import UnreadableOutput
+from holotype.tolerance import RuleBook
 
 NUMBER = re.compile(
     r"(?<![A-Za-z0-9_.])[-+]?(?:(?:\d+\.\d*|\.\d+|\d+)(?:[eE][-+]?\d+)?|inf(?:inity)?|nan)(?![A-Za-z0-9_])",
@@ -34,8 +37,8 @@ def _lines(src: Source) -> list[str]:
         raise UnreadableOutput(f"not UTF-8 text (byte {exc.start})", src.label) from None
 
 
-def compare_text(output: str, expected: Source, actual: Source, rules: RuleBook) -> TableOutcome:
-    outcome = TableOutcome()
+def compare_text(output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+    outcome = Outcome()
     e_lines, a_lines = _lines(expected), _lines(actual)
     judge_ = ColumnJudge("text", rules.for_output(output))
     e_vals: list[float] = []
@@ -56,7 +59,19 @@ def compare_text(output: str, expected: Source, actual: Source, rules: RuleBook)
     if e_vals:
         judge_.numeric(np.array(e_vals), np.array(a_vals), lambda i: where[i])
     if len(e_lines) != len(a_lines):
-        outcome.problems.append(("output.shape", f"{len(e_lines):,} lines recorded, {len(a_lines):,} found",
-                                 len(e_lines), len(a_lines)))
+        outcome.problem("output.shape", f"{len(e_lines):,} lines recorded, {len(a_lines):,} found",
+                        len(e_lines), len(a_lines))
     outcome.tallies = [judge_.result()]
     return outcome
+
+
+class TextFormat:
+    name: str = "text"
+    suffixes: tuple[str, ...] = (".txt", ".log", ".out", ".text")
+    honours: frozenset[str] = frozenset()
+
+    def compare(self, output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+        return compare_text(output, expected, actual, rules)
+
+
+register(TextFormat())

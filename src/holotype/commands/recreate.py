@@ -1,4 +1,4 @@
-"""`holotype rebuild DIR`: a fresh virtual environment matching the lock, then a check against it."""
+"""`holotype recreate DIR`: a fresh virtual environment matching the lock, then a check against it."""
 
 from __future__ import annotations
 
@@ -10,13 +10,13 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from holotype.atomic import write_atomic
-from holotype.capture.environment import capture_environment
-from holotype.commands.check import check_project
-from holotype.commands.export import requirement_line
-from holotype.errors import HolotypeError
+from holotype.capture.environment import capture_environment, venv_interpreter
+from holotype.errors import HolotypeError, InstallError
 from holotype.findings import Finding, Report
 from holotype.lockfile import LOCK_NAME, read_lock
-from holotype.records import Lock
+from holotype.records import LockContents
+from holotype.standards.requirements import requirement_line
+from holotype.verify import verify_project
 
 
 @dataclass
@@ -63,7 +63,7 @@ def interpreter_candidates(minor: str) -> list[str]:
     return list(dict.fromkeys(found))
 
 
-def find_interpreter(lock: Lock) -> str:
+def find_interpreter(lock: LockContents) -> str:
     """An interpreter of exactly the locked version, or a clear refusal naming it."""
     wanted = lock.interpreter.version
     for exe in interpreter_candidates(lock.interpreter.minor):
@@ -73,7 +73,7 @@ def find_interpreter(lock: Lock) -> str:
                         "or pass --python PATH to use another interpreter")
 
 
-def rebuild_environment(root: Path, target: Path, *, python: str | None = None,
+def recreate_environment(root: Path, target: Path, *, python: str | None = None,
                         installer: InstallerOptions | None = None) -> Report:
     """Create `target`, install every locked package at its exact version and origin (no resolution), check."""
     root = Path(root)
@@ -87,7 +87,7 @@ def rebuild_environment(root: Path, target: Path, *, python: str | None = None,
     if created.returncode != 0:
         raise HolotypeError(f"cannot create a virtual environment with {base}: "
                             f"{(created.stderr.strip().splitlines() or ['unknown error'])[-1]}")
-    venv_python = str(target / ("Scripts/python.exe" if os.name == "nt" else "bin/python"))
+    venv_python = str(venv_interpreter(target))
     present = capture_environment(venv_python, root).packages
     lines = []
     for name in sorted(lock.packages):
@@ -107,8 +107,8 @@ def rebuild_environment(root: Path, target: Path, *, python: str | None = None,
                                "-r", str(req_file), *installer.args()], capture_output=True, text=True)
         if proc.returncode != 0:
             tail = [ln for ln in proc.stderr.strip().splitlines() if ln.strip()][-1:] or ["unknown error"]
-            raise HolotypeError(f"installing the locked packages into {target} failed: {tail[0]}")
+            raise InstallError(f"installing the locked packages into {target} failed: {tail[0]}")
     findings.append(Finding("lockfile", str(target), "lockfile.note",
                             f"built with {base}; installed {len(lines)} package(s) without dependency resolution"))
-    checked = check_project(root, python=venv_python)
-    return Report("rebuild", tuple(findings) + checked.findings, notes=checked.notes)
+    checked = verify_project(root, command="recreate", python=venv_python)
+    return Report("recreate", tuple(findings) + checked.findings, notes=checked.notes, warnings=checked.warnings)

@@ -6,13 +6,23 @@ loadings matrix); a 1-D array flips as a whole.
 
 from __future__ import annotations
 
+import tokenize
+import zipfile
+from fnmatch import fnmatchcase
 from typing import Any
 
 import numpy as np
 
-from holotype.compare.source import Source, UnreadableOutput
-from holotype.compare.tables import ColumnJudge, TableOutcome
-from holotype.compare.tolerance import RuleBook
+from holotype.compare.formats import register
+from holotype.compare.judge import ColumnJudge, Where
+from holotype.compare.outcome import Outcome
+from holotype.compare.source import Source
+from holotype.errors import UnreadableOutput
+from holotype.tolerance import RuleBook
+
+# what NumPy raises for a damaged header or archive (found by fuzzing; see tests/test_fuzz.py)
+LOAD_ERRORS = (ValueError, SyntaxError, tokenize.TokenError, EOFError, OSError, KeyError, zipfile.BadZipFile,
+               TypeError, MemoryError)
 
 
 def load_arrays(src: Source) -> dict[str, np.ndarray]:
@@ -23,7 +33,7 @@ def load_arrays(src: Source) -> dict[str, np.ndarray]:
             return {"array": loaded}
         with loaded as archive:
             return {name: archive[name] for name in archive.files}
-    except Exception as exc:  # a damaged header makes NumPy raise ValueError, SyntaxError, TokenError, EOFError…
+    except LOAD_ERRORS as exc:
         text = str(exc).splitlines()[0] if str(exc) else type(exc).__name__
         if "allow_pickle" in text or "Object arrays" in text:
             text = "holds Python objects (object dtype); holotype never unpickles"
@@ -41,32 +51,42 @@ def _slice_index(sub_shape: tuple[int, ...], flat: int, last: int) -> str:
     return "(" + ", ".join([*head, str(last)]) + ")"
 
 
+def _slice_where(label: str, sub_shape: tuple[int, ...], last: int) -> Where:
+    return lambda i: f"{label}index {_slice_index(sub_shape, i, last)}"
+
+
+def _flat_where(label: str, shape: tuple[int, ...], suffix: str) -> Where:
+    return lambda i: f"{label}index {_index_text(shape, i)}{suffix}"
+
+
 def _numeric_kind(dtype: np.dtype[Any]) -> bool:
     return dtype.kind in "biuf"
 
 
-def compare_arrays(output: str, expected: Source, actual: Source, rules: RuleBook) -> TableOutcome:
-    outcome = TableOutcome()
-    e_all, a_all = load_arrays(expected), load_arrays(actual)
+def compare_arrays(output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+    outcome = Outcome()
+    ignored = rules.for_output(output).ignore
+    e_all = {k: v for k, v in load_arrays(expected).items() if not any(fnmatchcase(k, g) for g in ignored)}
+    a_all = {k: v for k, v in load_arrays(actual).items() if not any(fnmatchcase(k, g) for g in ignored)}
     for name in e_all:
         if name not in a_all:
-            outcome.problems.append(("output.shape", f"array '{name}' missing", name, None))
+            outcome.problem("output.shape", f"array '{name}' missing", name, None)
     for name in a_all:
         if name not in e_all:
-            outcome.problems.append(("output.shape", f"new array '{name}'", None, name))
+            outcome.problem("output.shape", f"new array '{name}'", None, name)
     for name in (n for n in e_all if n in a_all):
         e, a = e_all[name], a_all[name]
         label = "" if name == "array" and len(e_all) == 1 else f"{name} "
         if e.shape != a.shape:
-            outcome.problems.append(("output.shape", f"{label}shape {e.shape} recorded, {a.shape} found",
-                                     list(e.shape), list(a.shape)))
+            outcome.problem("output.shape", f"{label}shape {e.shape} recorded, {a.shape} found",
+                                     list(e.shape), list(a.shape))
             continue
         tol = rules.for_column(output, name) if label else rules.for_output(output)
         if e.dtype != a.dtype:
             same_family = (_numeric_kind(e.dtype) and _numeric_kind(a.dtype)) or (e.dtype.kind == a.dtype.kind == "c")
             if not same_family:
-                outcome.problems.append(("output.shape", f"{label}dtype {e.dtype} recorded, {a.dtype} found",
-                                         str(e.dtype), str(a.dtype)))
+                outcome.problem("output.shape", f"{label}dtype {e.dtype} recorded, {a.dtype} found",
+                                         str(e.dtype), str(a.dtype))
                 continue
             outcome.notes.append(f"{label}dtype {e.dtype} recorded, {a.dtype} found; values compared as float64")
         if e.dtype.kind == "c":
@@ -93,11 +113,22 @@ def compare_arrays(output: str, expected: Source, actual: Source, rules: RuleBoo
                     judge_ = ColumnJudge(f"{label}[..., {j}]{suffix}".strip(), tol)
                     es, as_ = ep64[..., j].reshape(-1), ap64[..., j].reshape(-1)
                     sub_shape = ep64.shape[:-1]
-                    judge_.numeric(es, as_, lambda i, j=j, s=sub_shape, lb=label: f"{lb}index {_slice_index(s, i, j)}")
+                    judge_.numeric(es, as_, _slice_where(label, sub_shape, j))
                     outcome.tallies.append(judge_.result())
             else:
                 judge_ = ColumnJudge(f"{label}{suffix}".strip() or "values", tol)
-                judge_.numeric(ep64.reshape(-1), ap64.reshape(-1),
-                               lambda i, s=ep64.shape, lb=label, sx=suffix: f"{lb}index {_index_text(s, i)}{sx}")
+                judge_.numeric(ep64.reshape(-1), ap64.reshape(-1), _flat_where(label, ep64.shape, suffix))
                 outcome.tallies.append(judge_.result())
     return outcome
+
+
+class ArrayFormat:
+    name: str = "numpy"
+    suffixes: tuple[str, ...] = (".npy", ".npz")
+    honours: frozenset[str] = frozenset({"ignore", "sign_free"})  # ignore: by array name inside an .npz
+
+    def compare(self, output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+        return compare_arrays(output, expected, actual, rules)
+
+
+register(ArrayFormat())

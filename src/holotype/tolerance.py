@@ -7,6 +7,8 @@ from dataclasses import dataclass, field, replace
 from fnmatch import fnmatchcase
 from typing import Any
 
+from holotype.errors import ToleranceError
+
 NUMERIC_KEYS = ("atol", "rtol", "ulps", "digits")
 RULE_KEYS = (*NUMERIC_KEYS, "sign_free", "key", "ignore")
 
@@ -47,6 +49,12 @@ class Tolerance:
                 continue
             out[name] = list(value) if isinstance(value, tuple) else value
         return out
+
+    @classmethod
+    def from_summary(cls, summary: dict[str, Any]) -> Tolerance:
+        """The inverse of `summary` (as read back from the lockfile); unknown keys are ignored."""
+        settings = {k: tuple(v) if isinstance(v, list) else v for k, v in summary.items() if k in RULE_KEYS}
+        return cls().overlay(settings)
 
     def describe(self) -> str:
         parts = [f"{k}={getattr(self, k):g}" for k in NUMERIC_KEYS if getattr(self, k) is not None]
@@ -106,30 +114,36 @@ class RuleBook:
         return tol
 
 
+def default_tolerance(settings: dict[str, Any]) -> Tolerance:
+    """The project default from [tolerance] or compare's flags: numeric keys replace the built-in criteria."""
+    base = Tolerance() if any(k in settings for k in NUMERIC_KEYS) else DEFAULT_TOLERANCE
+    return base.overlay(settings)
+
+
 def parse_rule_settings(table: dict[str, Any], where: str) -> dict[str, Any]:
-    """Validate rule keys from config or CLI flags; raise ValueError with a message naming `where`."""
+    """Validate rule keys from config or CLI flags; raise ToleranceError with a message naming `where`."""
     out: dict[str, Any] = {}
     for name, value in table.items():
         if name in ("atol", "rtol", "digits"):
             if isinstance(value, bool) or not isinstance(value, (int, float)):
-                raise ValueError(f"'{where}{name}' should be a number, found {type(value).__name__}")
+                raise ToleranceError(f"'{where}{name}' should be a number, found {type(value).__name__}")
             value = float(value)
             if math.isnan(value) or math.isinf(value) or value < 0:
-                raise ValueError(f"'{where}{name}' should be a finite number >= 0, found {value}")
+                raise ToleranceError(f"'{where}{name}' should be a finite number >= 0, found {value}")
             out[name] = value
         elif name == "ulps":
             if isinstance(value, bool) or not isinstance(value, int) or value < 0 or value > 2**62:
-                raise ValueError(f"'{where}ulps' should be a whole number >= 0, found {value!r}")
+                raise ToleranceError(f"'{where}ulps' should be a whole number >= 0, found {value!r}")
             out[name] = value
         elif name == "sign_free":
             if not isinstance(value, bool):
-                raise ValueError(f"'{where}sign_free' should be true or false, found {value!r}")
+                raise ToleranceError(f"'{where}sign_free' should be true or false, found {value!r}")
             out[name] = value
         elif name in ("key", "ignore"):
             items = [value] if isinstance(value, str) else value
             if not isinstance(items, list) or not all(isinstance(x, str) and x for x in items):
-                raise ValueError(f"'{where}{name}' should be a list of column names")
+                raise ToleranceError(f"'{where}{name}' should be a list of column names")
             out[name] = tuple(items)
         else:
-            raise KeyError(name)
+            raise ToleranceError(f"'{where}{name}' is not a tolerance key")
     return out

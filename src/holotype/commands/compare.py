@@ -6,33 +6,29 @@ from pathlib import Path
 from typing import Any
 
 from holotype.compare.outputs import compare_paths
-from holotype.compare.source import UnreadableOutput
-from holotype.compare.tolerance import DEFAULT_TOLERANCE, NUMERIC_KEYS, Rule, RuleBook, Tolerance, parse_rule_settings
-from holotype.errors import HolotypeError, InputError
+from holotype.errors import InputError, ToleranceError
 from holotype.findings import Report
 from holotype.findings.policy import apply_policy
+from holotype.tolerance import Rule, RuleBook, default_tolerance, parse_rule_settings
 
 
 def rulebook_from_flags(atol: float | None = None, rtol: float | None = None, ulps: int | None = None,
                         digits: float | None = None, key: list[str] | None = None,
                         sign_free: list[str] | None = None, ignore: list[str] | None = None) -> RuleBook:
     """The same rules the config builds, from compare's flags. No numeric flag: the project default."""
-    numeric: dict[str, Any] = {k: v for k, v in (("atol", atol), ("rtol", rtol), ("ulps", ulps),
-                                                   ("digits", digits)) if v is not None}
-    settings: dict[str, Any] = dict(numeric)
+    settings: dict[str, Any] = {k: v for k, v in (("atol", atol), ("rtol", rtol), ("ulps", ulps),
+                                                    ("digits", digits)) if v is not None}
     if key:
         settings["key"] = list(key)
     if ignore:
         settings["ignore"] = list(ignore)
     try:
         parsed = parse_rule_settings(settings, "--")
-    except ValueError as exc:
-        raise HolotypeError(str(exc).replace("'--", "'--").replace("_", "-")) from None
-    base = Tolerance() if any(k in parsed for k in NUMERIC_KEYS) else DEFAULT_TOLERANCE
-    default = base.overlay(parsed)
+    except ToleranceError as exc:
+        raise ToleranceError(exc.detail.replace("_", "-")) from None
     rules = tuple(Rule(match=f"*:{glob}", settings={"sign_free": True}) for glob in (sign_free or []))
     rules += tuple(Rule(match=glob, settings={"sign_free": True}) for glob in (sign_free or []))
-    return RuleBook(default=default, rules=rules)
+    return RuleBook(default=default_tolerance(parsed), rules=rules)
 
 
 def compare_inputs(expected: Path, actual: Path, rules: RuleBook) -> Report:
@@ -42,8 +38,4 @@ def compare_inputs(expected: Path, actual: Path, rules: RuleBook) -> Report:
             raise InputError("no such file or folder", p)
     if expected.is_dir() != actual.is_dir():
         raise InputError("compare two files or two folders, not one of each", actual)
-    try:
-        findings = compare_paths(expected, actual, rules)
-    except UnreadableOutput as exc:
-        raise InputError(exc.message, exc.label) from None
-    return Report("compare", apply_policy(findings))
+    return Report("compare", apply_policy(compare_paths(expected, actual, rules)))

@@ -1,44 +1,15 @@
-"""`holotype export`: the locked packages as requirements.txt pins or a PEP 751 pylock.toml."""
+"""PEP 751 pylock.toml for the locked packages, validated by packaging's own reader before it is written."""
 
 from __future__ import annotations
 
 import hashlib
-import os
 from pathlib import Path
 from typing import Any
 
-from holotype import __version__
 from holotype.errors import HolotypeError
-from holotype.lockfile import LOCK_NAME, read_lock
-from holotype.records import Lock, PackageRecord
-
-
-def expand_home(url: str) -> str:
-    """Undo the lock's file://~/ shorthand for the machine exporting it."""
-    if url.startswith("file://~/"):
-        return "file://" + os.path.expanduser("~/") + url[len("file://~/"):]
-    return url
-
-
-def requirement_line(pkg: PackageRecord) -> str:
-    """One pinned requirement (PEP 508 / PEP 440 ===-free exact pin, or a direct reference for non-index origins)."""
-    o = pkg.origin
-    if o.kind == "vcs" and o.url and o.commit:
-        sub = f"#subdirectory={o.subdirectory}" if o.subdirectory else ""
-        return f"{pkg.name} @ {o.vcs}+{o.url}@{o.commit}{sub}"
-    if o.kind == "archive" and o.url:
-        frag = f"#{o.archive_hash}" if o.archive_hash and "#" not in o.url else ""
-        return f"{pkg.name} @ {o.url}{frag}"
-    if o.kind in ("directory", "editable") and o.url:
-        return f"{pkg.name} @ {expand_home(o.url)}"
-    return f"{pkg.name}=={pkg.version}"
-
-
-def export_requirements(lock: Lock) -> str:
-    lines = [f"# Exact pins exported by holotype {__version__} from {LOCK_NAME} (recorded {lock.recorded}),",
-             f"# Python {lock.interpreter.version} on {lock.platform.system} {lock.platform.machine}."]
-    lines += [requirement_line(lock.packages[name]) for name in sorted(lock.packages)]
-    return "\n".join(lines) + "\n"
+from holotype.phrasing import listed
+from holotype.records import LockContents, PackageRecord
+from holotype.standards.requirements import expand_home
 
 
 def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
@@ -66,7 +37,7 @@ def _sha256(path: Path) -> str:
         return hashlib.file_digest(fh, "sha256").hexdigest()
 
 
-def pylock_dict(lock: Lock, find_links: list[Path]) -> dict[str, Any]:
+def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
     """A PEP 751 document. Index packages need their files' hashes, found in `find_links` folders."""
     packages: list[dict[str, Any]] = []
     unhashed: list[str] = []
@@ -97,7 +68,7 @@ def pylock_dict(lock: Lock, find_links: list[Path]) -> dict[str, Any]:
                                   "hashes": {"sha256": _sha256(sdists[0])}}
         packages.append(entry)
     if unhashed:
-        shown = ", ".join(unhashed[:3]) + (f" and {len(unhashed) - 3} more" if len(unhashed) > 3 else "")
+        shown = listed(unhashed, 3)
         raise HolotypeError(f"pylock.toml needs a file hash for each index package, and none was found for {shown}; "
                             "pass --find-links DIR holding their wheels (for example from 'pip download --no-deps "
                             "-d DIR -r requirements.txt')")
@@ -105,7 +76,7 @@ def pylock_dict(lock: Lock, find_links: list[Path]) -> dict[str, Any]:
             "requires-python": f"=={lock.interpreter.version}", "packages": packages}
 
 
-def export_pylock(lock: Lock, find_links: list[Path]) -> str:
+def export_pylock(lock: LockContents, find_links: list[Path]) -> str:
     import tomli_w
     from packaging.pylock import Pylock, PylockValidationError
 
@@ -115,10 +86,3 @@ def export_pylock(lock: Lock, find_links: list[Path]) -> str:
     except PylockValidationError as exc:
         raise HolotypeError(f"cannot express this lock as pylock.toml: {exc}") from None
     return tomli_w.dumps(doc)
-
-
-def export_lock(root: Path, fmt: str, find_links: list[Path] | None = None) -> str:
-    lock = read_lock(Path(root) / LOCK_NAME)
-    if fmt == "requirements":
-        return export_requirements(lock)
-    return export_pylock(lock, find_links or [])

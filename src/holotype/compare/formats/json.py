@@ -14,13 +14,16 @@ from typing import Any
 
 import numpy as np
 
-from holotype.compare.source import Source, UnreadableOutput
-from holotype.compare.tables import ColumnJudge, TableOutcome
+from holotype.compare.formats import register
+from holotype.compare.judge import ColumnJudge
+from holotype.compare.outcome import Outcome
+from holotype.compare.source import Source
 from holotype.compare.tally import Tally
-from holotype.compare.tolerance import RuleBook
+from holotype.errors import UnreadableOutput
+from holotype.phrasing import listed
+from holotype.tolerance import RuleBook
 
 _PLAIN_KEY = re.compile(r"^[A-Za-z_][A-Za-z0-9_-]*$")
-SHOWN = 5
 
 
 def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
@@ -85,20 +88,17 @@ def _is_number(v: Any) -> bool:
     return isinstance(v, (int, float)) and not isinstance(v, bool)
 
 
-def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook) -> TableOutcome:
-    outcome = TableOutcome()
+def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+    outcome = Outcome()
     e = _columns_for(load_json(expected))
     a = _columns_for(load_json(actual))
     whole = rules.for_output(output)
     missing = [p for p in e if p not in a]
     extra = [p for p in a if p not in e]
     if missing:
-        outcome.problems.append(("output.shape", f"{len(missing)} value(s) missing: " + ", ".join(missing[:SHOWN])
-                                 + (f" and {len(missing) - SHOWN} more" if len(missing) > SHOWN else ""),
-                                 len(missing), None))
+        outcome.problem("output.shape", f"{len(missing)} value(s) missing: " + listed(missing), len(missing), None)
     if extra:
-        outcome.problems.append(("output.shape", f"{len(extra)} new value(s): " + ", ".join(extra[:SHOWN])
-                                 + (f" and {len(extra) - SHOWN} more" if len(extra) > SHOWN else ""), None, len(extra)))
+        outcome.problem("output.shape", f"{len(extra)} new value(s): " + listed(extra), None, len(extra))
     groups: dict[str, list[str]] = {}
     for path, (_value, column) in e.items():
         if path in a and not any(fnmatchcase(path, g) for g in whole.ignore):
@@ -111,7 +111,7 @@ def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook)
         if numeric:
             ev = np.array([_as_float(e[p][0]) for p in numeric], dtype=np.float64)
             av = np.array([_as_float(a[p][0]) for p in numeric], dtype=np.float64)
-            judge_.numeric(ev, av, lambda i, ps=numeric: ps[i])
+            judge_.numeric(ev, av, numeric.__getitem__)
         for p in paths:
             if _is_number(e[p][0]) and _is_number(a[p][0]):
                 continue
@@ -127,3 +127,15 @@ def _as_float(v: Any) -> float:
         return float(v)
     except OverflowError:  # an integer beyond binary64: compare its sign and magnitude as infinity
         return math.copysign(math.inf, v)
+
+
+class JsonFormat:
+    name: str = "json"
+    suffixes: tuple[str, ...] = (".json",)
+    honours: frozenset[str] = frozenset({"ignore", "sign_free"})
+
+    def compare(self, output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
+        return compare_json(output, expected, actual, rules)
+
+
+register(JsonFormat())

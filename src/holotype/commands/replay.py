@@ -1,0 +1,79 @@
+"""`holotype replay`: run the analyses again with their seeds and compare every output with its baseline."""
+
+from __future__ import annotations
+
+import shlex
+from pathlib import Path
+
+from holotype.capture.environment import resolve_python
+from holotype.clock import timestamp
+from holotype.compare.analyses import compare_analyses, compare_project_seed
+from holotype.compare.runs import compare_two_runs, compare_with_baselines, failure_finding, ran_finding
+from holotype.config import load_config
+from holotype.findings import Finding, Report
+from holotype.findings.policy import apply_policy
+from holotype.lockfile import LOCK_NAME, read_lock
+from holotype.records import RunResult
+from holotype.run.plan import Plan, make_plan
+from holotype.run.runner import RunEvents, Runner, SerialRunner
+from holotype.store import ProjectStore
+
+
+def plan_findings(plan: Plan, root: Path) -> list[Finding]:
+    """What would run, with which environment changes: for reading before running someone's code."""
+    findings = []
+    for step in plan.steps:
+        argv = shlex.join(step.argv) if step.split_error is None else f"({step.split_error})"
+        path_head = step.env.get("PATH", "").split(":")[0]
+        variables = " ".join(f"{k}={v}" for k, v in step.shown_variables().items())
+        findings.append(Finding("analysis", step.name, "analysis.plan",
+                                f"would run: {argv} in {root} (timeout {step.timeout or 'none'}); "
+                                f"PATH starts with {path_head}; {variables}", None, argv))
+    return findings
+
+
+def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = False, python: str | None = None,
+                   dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None) -> Report:
+    """Run analyses again and judge every output against its baseline."""
+    root = Path(root)
+    config = load_config(root)
+    lock = read_lock(root / LOCK_NAME)
+    analyses = config.select(names)
+    interpreter, _ = resolve_python(config.python, root, python)
+    project_seed = config.seed_to_use(lock.project_seed)
+    plan = make_plan(config, interpreter, analyses, project_seed)
+    selected = [a.name for a in analyses]
+    # a changed command or seed is shown before anything runs, in a dry run too
+    findings = compare_project_seed(config, lock, ran_with=project_seed)
+    findings += [f for f in compare_analyses(config, lock, selected) if f.kind != "analysis.missing"]
+    warnings = config.warnings + lock.notices
+    if dry_run:
+        return Report("replay", apply_policy(findings + plan_findings(plan, root), config.policy),
+                      notes=("dry run: nothing was run",), warnings=warnings, verdict=False)
+    store = ProjectStore(root)
+    store.prepare()
+    runner = runner or SerialRunner(store)
+    results = runner.run(plan, progress)
+    seconds: dict[str, RunResult] = {}
+    if twice:
+        seconds = {r.name: r for r in runner.run(plan, progress, log_suffix=".second")}
+    for result in results:
+        record = lock.analyses.get(result.name)
+        if not result.ok:
+            findings.append(failure_finding(result, root))
+            continue
+        findings.append(ran_finding(result))
+        if record is not None:
+            if record.seed != result.seed:
+                findings.append(Finding("seed", result.name, "seed.changed",
+                                        f"seed {record.seed} recorded, {result.seed} used", record.seed, result.seed))
+            findings += compare_with_baselines(record, result, store.baselines, config.rulebook)
+        second = seconds.get(result.name)
+        if second is not None:
+            findings += compare_two_runs(result, second) if second.ok else [
+                Finding("analysis", result.name, "analysis.failed", f"second run: {second.failure_text()}")]
+    report = Report("replay", apply_policy(findings, config.policy), warnings=warnings)
+    store.save_last_replay({"when": timestamp(), "analyses": selected,
+                            "outputs": {out: p.sha256 for r in results if r.ok for out, p in r.outputs.items()},
+                            **report.to_dict()})
+    return report

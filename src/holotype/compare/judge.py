@@ -1,0 +1,91 @@
+"""The column judge every format feeds, and the column plan shared by the table formats."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from fnmatch import fnmatchcase
+from typing import Any
+
+import numpy as np
+
+from holotype.compare.cells import MISSING, NUMBER, TEXT, column_arrays
+from holotype.compare.numbers import judge
+from holotype.compare.outcome import Outcome
+from holotype.compare.tally import Tally
+from holotype.phrasing import listed
+from holotype.tolerance import RuleBook, Tolerance
+
+Where = Callable[[int], str]
+
+
+class ColumnJudge:
+    """Compares one unit (a column, a JSON path group, an array) chunk by chunk.
+
+    A sign-free unit keeps a flipped tally too, and the orientation that fits wins as a whole.
+    """
+
+    def __init__(self, name: str, tol: Tolerance) -> None:
+        self.tally = Tally(name, tol)
+        self.flipped = Tally(name, tol) if tol.sign_free else None
+
+    def feed(self, expected: Any, actual: Any, where: Where) -> None:
+        """A chunk of cells of any kind: numbers numerically, text and missing values exactly."""
+        e_num, e_kind, e_obj = column_arrays(expected)
+        a_num, a_kind, a_obj = column_arrays(actual)
+        if e_kind is None and a_kind is None:
+            self.numeric(e_num, a_num, where)
+            return
+        n = e_num.shape[0]
+        ek = e_kind if e_kind is not None else np.zeros(n, dtype=np.int8)
+        ak = a_kind if a_kind is not None else np.zeros(n, dtype=np.int8)
+        both_num = (ek == NUMBER) & (ak == NUMBER)
+        idx = np.where(both_num)[0]
+        if idx.size:
+            self.numeric(e_num[idx], a_num[idx], lambda i: where(int(idx[i])))
+        for i in np.where(~both_num)[0].tolist():
+            if ek[i] == MISSING and ak[i] == MISSING:
+                equal = True
+            elif ek[i] == TEXT and ak[i] == TEXT:
+                equal = str(e_obj[i]) == str(a_obj[i])  # type: ignore[index]
+            else:
+                equal = False
+            e_val = "(missing)" if ek[i] == MISSING else (e_obj[i] if e_obj is not None else e_num[i])
+            a_val = "(missing)" if ak[i] == MISSING else (a_obj[i] if a_obj is not None else a_num[i])
+            self.exact(equal, where(i), e_val, a_val)
+
+    def exact(self, equal: bool, where: str, expected: Any, actual: Any) -> None:
+        """One cell compared exactly (text, missing, or kinds that differ); sign plays no part."""
+        self.tally.add_exact(equal, where, expected, actual)
+        if self.flipped is not None:
+            self.flipped.add_exact(equal, where, expected, actual)
+
+    def numeric(self, e: np.ndarray, a: np.ndarray, where: Where) -> None:
+        tol = self.tally.tolerance
+        self.tally.add_numeric(e, a, judge(e, a, tol), where)
+        if self.flipped is not None:
+            neg = -a
+            self.flipped.add_numeric(e, neg, judge(e, neg, tol), where)
+
+    def result(self) -> Tally:
+        """The orientation that fits: a sign-free unit may be flipped as a whole, never value by value."""
+        if self.flipped is not None and self.flipped.mismatches < self.tally.mismatches:
+            self.flipped.sign_flipped = True
+            return self.flipped
+        return self.tally
+
+
+def plan_columns(output: str, e_cols: list[str], a_cols: list[str], rules: RuleBook, outcome: Outcome) -> list[str]:
+    """The columns to compare: shared by name, minus ignored and key columns; shape problems noted."""
+    whole = rules.for_output(output)
+    shared = [c for c in e_cols if c in a_cols]
+    only_e = [c for c in e_cols if c not in a_cols]
+    only_a = [c for c in a_cols if c not in e_cols]
+    if only_e:
+        outcome.problem("output.shape", f"column(s) missing: {listed(only_e)}", only_e, None)
+    if only_a:
+        outcome.problem("output.shape", f"new column(s): {listed(only_a)}", None, only_a)
+    if [c for c in a_cols if c in shared] != shared:
+        outcome.notes.append("columns are in a different order (matched by name)")
+    if len(set(e_cols)) != len(e_cols) or len(set(a_cols)) != len(a_cols):
+        outcome.problem("output.shape", "duplicate column names; only the first of each is compared")
+    return [c for c in shared if not any(fnmatchcase(c, g) for g in whole.ignore) and c not in whole.key]

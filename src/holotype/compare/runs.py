@@ -1,0 +1,79 @@
+"""Run results in, Findings out: failures, outputs against their baselines, and two runs against each other."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from holotype.compare.outputs import compare_or_unreadable
+from holotype.compare.source import Source
+from holotype.errors import BaselineError
+from holotype.findings import Finding
+from holotype.records import AnalysisRecord, RunResult
+from holotype.store import BaselineStore
+from holotype.tolerance import RuleBook, Tolerance
+
+EXACT = RuleBook(default=Tolerance())
+NONDETERMINISM_CAUSES = ("an unseeded random generator (use holotype.seeds.rng() or set seed_globals = true), "
+                         "more than one BLAS/OpenMP thread (set threads = 1), iteration over a set or dict "
+                         "of strings, or the time or date in the output")
+
+
+def failure_finding(result: RunResult, root: Path) -> Finding:
+    """An analysis that crashed, timed out or wrote no output: the error text and where its log is."""
+    try:
+        log = result.log.relative_to(root)
+    except ValueError:
+        log = result.log
+    return Finding("analysis", result.name, "analysis.failed", f"{result.failure_text()} (log: {log})")
+
+
+def ran_finding(result: RunResult) -> Finding:
+    return Finding("analysis", result.name, "analysis.ran", f"ran in {result.seconds:.1f}s with seed {result.seed}")
+
+
+def compare_with_baselines(record: AnalysisRecord, result: RunResult, store: BaselineStore,
+                           rules: RuleBook) -> list[Finding]:
+    """Each fresh output against its baseline, through the engine and the project's rules."""
+    findings: list[Finding] = []
+    for out, rec in sorted(record.outputs.items()):
+        produced = result.outputs.get(out)
+        if produced is None:
+            findings.append(Finding("output", out, "output.missing", "not written by this run", rec.sha256, None))
+            continue
+        try:
+            baseline = store.get(rec.sha256)
+        except BaselineError as exc:
+            findings.append(Finding("output", out, "output.baseline", exc.detail, rec.sha256, None))
+            continue
+        expected = Source.from_bytes(baseline, out, f"baseline of {out}")
+        actual = Source.from_bytes(produced.data, out, out)
+        findings += compare_or_unreadable(out, expected, actual, rules)
+    for out in result.outputs:
+        if out not in record.outputs:
+            findings.append(Finding("output", out, "output.extra", "declared now, no baseline recorded; "
+                                    "run holotype adopt to take it", None, out))
+    return findings
+
+
+def _first_difference(finding: Finding) -> str:
+    if finding.stats is not None and finding.stats.worst:
+        return f"first differing value at {finding.stats.worst}: {finding.expected} then {finding.actual}"
+    return finding.message
+
+
+def compare_two_runs(first: RunResult, second: RunResult) -> list[Finding]:
+    """Two fresh runs must agree exactly; one finding per output that differs (nondeterminism)."""
+    findings: list[Finding] = []
+    for out, produced in sorted(first.outputs.items()):
+        again = second.outputs.get(out)
+        if again is None or again.sha256 == produced.sha256:
+            continue
+        verdict = compare_or_unreadable(out, Source.from_bytes(produced.data, out, f"{out} (first run)"),
+                                        Source.from_bytes(again.data, out, f"{out} (second run)"), EXACT)
+        bad = [f for f in verdict if f.kind != "output.match"]
+        shown = bad[0] if bad else verdict[0]
+        findings.append(Finding("analysis", first.name, "analysis.nondeterministic",
+                                f"nondeterministic: two runs with the same seed wrote different {out}; "
+                                f"{_first_difference(shown)}. Likely causes: {NONDETERMINISM_CAUSES}",
+                                shown.expected, shown.actual))
+    return findings

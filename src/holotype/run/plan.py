@@ -1,0 +1,99 @@
+"""The plan a runner executes: each analysis' command, environment, seed, timeout and declared outputs."""
+
+from __future__ import annotations
+
+import os
+import shlex
+from dataclasses import dataclass, field
+from importlib import resources
+from pathlib import Path
+
+from holotype.config import Analysis, Config
+from holotype.seeds import ANALYSIS_VARIABLE, PROJECT_SEED_VARIABLE, SEED_VARIABLE, derive_seed
+
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS",
+                    "NUMEXPR_NUM_THREADS", "VECLIB_MAXIMUM_THREADS")
+# what a dry run shows of the environment: holotype's own variables and these
+SHOWN_VARIABLES = ("PYTHONHASHSEED", "VIRTUAL_ENV", "PYTHONPATH", *THREAD_VARIABLES)
+
+
+def seeding_folder() -> str:
+    """The folder holding holotype's sitecustomize for seed_globals."""
+    return str(resources.files("holotype.run").joinpath("seeding"))
+
+
+def analysis_environment(config: Config, python: str, analysis: Analysis, project_seed: int) -> dict[str, str]:
+    """The variables an analysis process sees: as if its environment were activated, plus seeds."""
+    env = dict(os.environ)
+    bindir = Path(python).parent
+    venv = bindir.parent
+    if (venv / "pyvenv.cfg").exists():
+        env["VIRTUAL_ENV"] = str(venv)
+        env.pop("PYTHONHOME", None)
+    env["PATH"] = str(bindir) + os.pathsep + env.get("PATH", "")
+    seed = derive_seed(project_seed, analysis.name)
+    env[SEED_VARIABLE] = str(seed)
+    env[PROJECT_SEED_VARIABLE] = str(project_seed)
+    env[ANALYSIS_VARIABLE] = analysis.name
+    env["PYTHONHASHSEED"] = str(seed)
+    if config.threads is not None:
+        for name in THREAD_VARIABLES:
+            env[name] = str(config.threads)
+    if config.seed_globals:
+        env["PYTHONPATH"] = seeding_folder() + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+    return env
+
+
+def command_for(command: str, python: str) -> list[str]:
+    """Split the command like a shell would (no shell); a leading `python` means the target interpreter."""
+    argv = shlex.split(command)
+    if argv and argv[0] in ("python", "python3"):
+        argv[0] = python
+    return argv
+
+
+@dataclass(frozen=True)
+class Step:
+    """One analysis as a runner sees it."""
+
+    name: str
+    command: str
+    argv: tuple[str, ...]
+    env: dict[str, str] = field(repr=False)
+    cwd: Path
+    seed: int
+    timeout: float | None
+    outputs: tuple[str, ...]
+    after: tuple[str, ...] = ()  # steps whose outputs this one reads
+    split_error: str | None = None  # the command could not be split; the runner reports it, runs nothing
+
+    def shown_variables(self) -> dict[str, str]:
+        return {k: self.env[k] for k in sorted(self.env) if k.startswith("HOLOTYPE_") or k in SHOWN_VARIABLES}
+
+
+@dataclass(frozen=True)
+class Plan:
+    """Steps in a valid run order (every step after the steps it reads from)."""
+
+    steps: tuple[Step, ...]
+    python: str
+    project_seed: int
+
+    @property
+    def names(self) -> list[str]:
+        return [s.name for s in self.steps]
+
+
+def make_plan(config: Config, python: str, analyses: list[Analysis], project_seed: int) -> Plan:
+    """The plan for `analyses` (already in run order, as Config.select gives them)."""
+    producer = {out: a.name for a in config.analyses for out in a.outputs}
+    steps = []
+    for a in analyses:
+        try:
+            argv, error = tuple(command_for(a.command, python)), None
+        except ValueError as exc:
+            argv, error = (), f"cannot split the command: {exc}"
+        after = tuple(dict.fromkeys(producer[i] for i in a.inputs if i in producer and producer[i] != a.name))
+        steps.append(Step(a.name, a.command, argv, analysis_environment(config, python, a, project_seed),
+                          Path(config.root), derive_seed(project_seed, a.name), a.timeout, a.outputs, after, error))
+    return Plan(tuple(steps), python, project_seed)

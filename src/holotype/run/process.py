@@ -1,0 +1,100 @@
+"""Run one step in a controlled way: its own process group, a timeout, a log, outputs digested at the end."""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import shlex
+import signal
+import subprocess
+import threading
+import time
+from collections import deque
+from pathlib import Path
+from typing import IO, TYPE_CHECKING, TextIO
+
+from holotype.records import ProducedOutput, RunResult
+from holotype.run.plan import Step
+
+if TYPE_CHECKING:
+    from holotype.run.runner import RunEvents
+
+TAIL_LINES = 12
+
+
+def _stamp(path: Path) -> tuple[int, int, int, int] | None:
+    try:
+        st = os.stat(path)
+    except OSError:
+        return None
+    return (st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+def _pump(stream: IO[bytes], log: TextIO, tail: deque[str], name: str, events: RunEvents | None) -> None:
+    """Copy the analysis' output to its log, the tail and the progress display, line by line."""
+    for raw in iter(stream.readline, b""):
+        line = raw.decode("utf-8", "replace").rstrip("\r\n")
+        log.write(line + "\n")
+        tail.append(line)
+        if events is not None:
+            events.output(name, line)
+    stream.close()
+
+
+def _kill_group(proc: subprocess.Popen[bytes]) -> None:
+    try:
+        os.killpg(proc.pid, signal.SIGKILL)  # the whole process group: children too
+    except (OSError, AttributeError):  # no process groups (Windows): the process itself
+        proc.kill()
+
+
+def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | None], result: RunResult) -> None:
+    """Digest each declared output the run wrote (absent or untouched since before the run: not written)."""
+    for out in step.outputs:
+        path = step.cwd / out
+        stamp = _stamp(path)
+        if stamp is None or stamp == before[out]:
+            result.missing.append(out)
+            continue
+        try:
+            data = path.read_bytes()
+        except OSError:
+            result.missing.append(out)
+            continue
+        result.outputs[out] = ProducedOutput(out, hashlib.sha256(data).hexdigest(), len(data), data)
+
+
+def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> RunResult:
+    """Run one analysis from the project root and collect its declared outputs."""
+    result = RunResult(step.name, step.command, step.seed, log_path, step.timeout)
+    if step.split_error is not None:
+        result.error = step.split_error
+        return result
+    before = {out: _stamp(step.cwd / out) for out in step.outputs}
+    tail: deque[str] = deque(maxlen=TAIL_LINES)
+    start = time.monotonic()
+    try:
+        with open(log_path, "w", encoding="utf-8", errors="replace") as log:
+            log.write(f"# holotype: {step.name}: {shlex.join(step.argv)} (HOLOTYPE_SEED={step.seed})\n")
+            log.flush()
+            proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=step.env, stdin=subprocess.DEVNULL,
+                                    stdout=subprocess.PIPE, stderr=subprocess.STDOUT, start_new_session=True)
+            assert proc.stdout is not None
+            reader = threading.Thread(target=_pump, args=(proc.stdout, log, tail, step.name, events), daemon=True)
+            reader.start()
+            try:
+                proc.wait(timeout=step.timeout)
+            except subprocess.TimeoutExpired:
+                result.timed_out = True
+                _kill_group(proc)
+            reader.join(timeout=5)
+            result.returncode = proc.wait()
+    except FileNotFoundError:
+        result.error = f"command not found: {step.argv[0] if step.argv else '(empty)'}"
+    except OSError as exc:
+        result.error = f"cannot start '{step.command}': {exc.strerror}"
+    result.seconds = time.monotonic() - start
+    result.tail = list(tail)
+    if result.error is None and not result.timed_out and result.returncode == 0:
+        collect_outputs(step, before, result)
+    return result

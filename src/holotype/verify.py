@@ -1,0 +1,41 @@
+"""The check pipeline shared by `check` and `recreate`: capture the project now, compare it with the lock."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from holotype.capture.fingerprints import HashProgress
+from holotype.capture.project import capture_project
+from holotype.compare.analyses import check_baselines, compare_analyses, compare_project_seed
+from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
+from holotype.compare.files import compare_file_sets
+from holotype.config import load_config
+from holotype.findings import Finding, Report
+from holotype.findings.policy import apply_policy
+from holotype.lockfile import LOCK_NAME, read_lock
+from holotype.store import BaselineStore
+
+
+def verify_project(root: Path, *, command: str = "check", strict: bool = False, full: bool = False,
+                   python: str | None = None, progress: HashProgress | None = None) -> Report:
+    """Compare interpreter, platform, packages, data, code, seeds and analyses with the lock, running nothing."""
+    root = Path(root)
+    config = load_config(root, required=False)
+    lock = read_lock(root / LOCK_NAME)
+    now = capture_project(config, python_override=python, full=full, progress=progress)
+    findings: list[Finding] = []
+    findings += compare_interpreter(lock.interpreter, now.environment.interpreter)
+    findings += compare_platform(lock.platform, now.environment.platform)
+    findings += compare_packages(lock.packages, now.environment.packages)
+    findings += compare_file_sets("data", lock.data, now.data.records, now.data.problems)
+    findings += compare_file_sets("code", lock.code, now.code.records, now.code.problems)
+    findings += compare_project_seed(config, lock)
+    findings += compare_analyses(config, lock)
+    findings += check_baselines(BaselineStore(root), lock, verify=full)
+    for rel, problem in now.code_problems:
+        findings.append(Finding("code", rel, "code.unparsable", problem))
+    notes = (f"{len(lock.packages)} packages ({sum(p.used for p in lock.packages.values())} used), "
+             f"{len(lock.data)} data files, {len(lock.code)} code files checked against {LOCK_NAME} "
+             f"recorded {lock.recorded}",)
+    return Report(command, apply_policy(findings, config.policy, strict=strict), notes=notes,
+                  warnings=config.warnings + lock.notices)
