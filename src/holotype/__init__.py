@@ -4,7 +4,7 @@ The Python API, for notebooks and scripts (the command line calls the same funct
 
     import holotype
 
-    report = holotype.compare("baseline/results.csv", "results.csv", rtol=1e-6, key=["lake"])
+    report = holotype.compare_results("baseline/results.csv", "results.csv", rtol=1e-6, key=["lake"])
     report.ok, [f.message for f in report.findings]
 
     project = holotype.load_project(".")      # the validated holotype.toml
@@ -13,7 +13,8 @@ The Python API, for notebooks and scripts (the command line calls the same funct
 
 Every function returns a `Report` (findings with severities, `ok`, `to_dict()`), or raises a
 `HolotypeError` naming the file or setting when it cannot judge. Names are loaded on first use,
-so `import holotype` stays light.
+so `import holotype` stays light. (`holotype.compare` is the comparison engine's package, hence the
+function's longer name.)
 """
 
 from __future__ import annotations
@@ -22,7 +23,7 @@ from typing import TYPE_CHECKING, Any
 
 __version__ = "0.2.0"
 
-__all__ = ["Config", "Finding", "HolotypeError", "Report", "check", "compare", "load_project", "replay",
+__all__ = ["Config", "Finding", "HolotypeError", "Report", "check", "compare_results", "load_project", "replay",
            "__version__"]
 
 if TYPE_CHECKING:
@@ -44,7 +45,7 @@ def __getattr__(name: str) -> Any:
     raise AttributeError(f"module 'holotype' has no attribute {name!r}")
 
 
-def compare(expected: str | Path, actual: str | Path, *, atol: float | None = None, rtol: float | None = None,
+def compare_results(expected: str | Path, actual: str | Path, *, atol: float | None = None, rtol: float | None = None,
             ulps: int | None = None, digits: float | None = None, key: list[str] | None = None,
             sign_free: list[str] | None = None, ignore: list[str] | None = None) -> Report:
     """Compare two result files, or two folders paired by relative path, within the given tolerances.

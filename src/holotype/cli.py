@@ -426,7 +426,8 @@ def demo(session: Session, folder: Path) -> None:
         with open(os.devnull, "w", encoding="utf-8") as sink:
             run_demo(session.project / folder, Console(file=sink))
         return
-    run_demo(session.project / folder, session.console)
+    # a narrated tour reads best at the terminal's width (80 columns in a log), unlike findings tables
+    run_demo(session.project / folder, Console(file=sys.stdout, no_color=session.no_color, highlight=False))
 
 
 def main() -> None:

@@ -23,9 +23,7 @@ TRAILER = "# end of holotype.lock\n"
 
 def lock_to_dict(lock: LockContents) -> dict[str, Any]:
     """The TOML document for `lock`, keys in a stable order so equal locks give equal bytes."""
-    doc = to_table(lock)
-    doc["format"] = FORMAT
-    return doc
+    return {"format": FORMAT, **to_table(lock)}
 
 
 def dump_lock(lock: LockContents) -> str:
@@ -85,7 +83,6 @@ def lock_from_dict(doc: dict[str, Any], path: Path) -> LockContents:
         raise LockfileError(str(exc), path) from None
     except RecursionError:
         raise LockfileError("nested too deeply to be a lockfile", path) from None
-    lock.format = FORMAT
     lock.notices = notices
     return lock
 

@@ -148,7 +148,6 @@ class LockContents:
     code: dict[str, FileRecord] = entry(default_factory=dict, order=8)
     analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)
     history: list[HistoryEntry] = entry(default_factory=list, order=10)
-    format: int = entry(default=2, order=0)
     # said once to the user when this was read from an older format; never written
     notices: tuple[str, ...] = entry(default=(), skip=True)
 

@@ -166,13 +166,9 @@ def describe():
         "interpreter": {
             "implementation": info.name,
             "version": platform.python_version(),
-            "version_info": list(sys.version_info[:3]),
             "compiler": platform.python_compiler(),
             "abi": sysconfig.get_config_var("SOABI"),
-            "cache_tag": info.cache_tag,
             "executable": sys.executable,
-            "prefix": sys.prefix,
-            "base_prefix": getattr(sys, "base_prefix", sys.prefix),
         },
         "platform": {
             "system": platform.system(),

@@ -17,8 +17,9 @@ from holotype.findings import Finding, Report
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
 from holotype.records import AnalysisRecord, LockContents, OutputRecord
+from holotype.run.events import RunEvents
 from holotype.run.plan import make_plan
-from holotype.run.runner import RunEvents, Runner, SerialRunner
+from holotype.run.runner import Runner, SerialRunner
 from holotype.seeds import derive_seed, draw_seed
 from holotype.store import ProjectStore
 

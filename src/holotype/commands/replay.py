@@ -14,12 +14,13 @@ from holotype.findings import Finding, Report
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import RunResult
+from holotype.run.events import RunEvents
 from holotype.run.plan import Plan, make_plan
-from holotype.run.runner import RunEvents, Runner, SerialRunner
+from holotype.run.runner import Runner, SerialRunner
 from holotype.store import ProjectStore
 
 
-def plan_findings(plan: Plan, root: Path) -> list[Finding]:
+def plan_findings(plan: Plan, root: Path, how: str) -> list[Finding]:
     """What would run, with which environment changes: for reading before running someone's code."""
     findings = []
     for step in plan.steps:
@@ -27,7 +28,8 @@ def plan_findings(plan: Plan, root: Path) -> list[Finding]:
         path_head = step.env.get("PATH", "").split(":")[0]
         variables = " ".join(f"{k}={v}" for k, v in step.shown_variables().items())
         findings.append(Finding("analysis", step.name, "analysis.plan",
-                                f"would run: {argv} in {root} (timeout {step.timeout or 'none'}); "
+                                f"would run: {argv} in {root} (timeout {step.timeout or 'none'}; interpreter "
+                                f"{plan.python}, from {how}); "
                                 f"PATH starts with {path_head}; {variables}", None, argv))
     return findings
 
@@ -39,7 +41,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     config = load_config(root)
     lock = read_lock(root / LOCK_NAME)
     analyses = config.select(names)
-    interpreter, _ = resolve_python(config.python, root, python)
+    interpreter, how = resolve_python(config.python, root, python)
     project_seed = config.seed_to_use(lock.project_seed)
     plan = make_plan(config, interpreter, analyses, project_seed)
     selected = [a.name for a in analyses]
@@ -48,7 +50,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     findings += [f for f in compare_analyses(config, lock, selected) if f.kind != "analysis.missing"]
     warnings = config.warnings + lock.notices
     if dry_run:
-        return Report("replay", apply_policy(findings + plan_findings(plan, root), config.policy),
+        return Report("replay", apply_policy(findings + plan_findings(plan, root, how), config.policy),
                       notes=("dry run: nothing was run",), warnings=warnings, verdict=False)
     store = ProjectStore(root)
     store.prepare()
@@ -63,15 +65,19 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
             findings.append(failure_finding(result, root))
             continue
         findings.append(ran_finding(result))
+        second = seconds.get(result.name)
+        unstable: dict[str, Finding] = {}
+        if second is not None:
+            unstable = compare_two_runs(result, second) if second.ok else {
+                "": Finding("analysis", result.name, "analysis.failed", f"second run: {second.failure_text()}")}
         if record is not None:
             if record.seed != result.seed:
                 findings.append(Finding("seed", result.name, "seed.changed",
                                         f"seed {record.seed} recorded, {result.seed} used", record.seed, result.seed))
-            findings += compare_with_baselines(record, result, store.baselines, config.rulebook)
-        second = seconds.get(result.name)
-        if second is not None:
-            findings += compare_two_runs(result, second) if second.ok else [
-                Finding("analysis", result.name, "analysis.failed", f"second run: {second.failure_text()}")]
+            # an output that differs between two runs is reported once, as nondeterministic, not also as a mismatch
+            findings += [f for f in compare_with_baselines(record, result, store.baselines, config.rulebook)
+                         if not (f.subject in unstable and f.kind == "output.mismatch")]
+        findings += unstable.values()
     report = Report("replay", apply_policy(findings, config.policy), warnings=warnings)
     store.save_last_replay({"when": timestamp(), "analyses": selected,
                             "outputs": {out: p.sha256 for r in results if r.ok for out, p in r.outputs.items()},

@@ -61,9 +61,9 @@ def _first_difference(finding: Finding) -> str:
     return finding.message
 
 
-def compare_two_runs(first: RunResult, second: RunResult) -> list[Finding]:
-    """Two fresh runs must agree exactly; one finding per output that differs (nondeterminism)."""
-    findings: list[Finding] = []
+def compare_two_runs(first: RunResult, second: RunResult) -> dict[str, Finding]:
+    """Two fresh runs must agree exactly; one finding per output that differs (nondeterminism), by output."""
+    findings: dict[str, Finding] = {}
     for out, produced in sorted(first.outputs.items()):
         again = second.outputs.get(out)
         if again is None or again.sha256 == produced.sha256:
@@ -72,7 +72,7 @@ def compare_two_runs(first: RunResult, second: RunResult) -> list[Finding]:
                                         Source.from_bytes(again.data, out, f"{out} (second run)"), EXACT)
         bad = [f for f in verdict if f.kind != "output.match"]
         shown = bad[0] if bad else verdict[0]
-        findings.append(Finding("analysis", first.name, "analysis.nondeterministic",
+        findings[out] = (Finding("analysis", first.name, "analysis.nondeterministic",
                                 f"nondeterministic: two runs with the same seed wrote different {out}; "
                                 f"{_first_difference(shown)}. Likely causes: {NONDETERMINISM_CAUSES}",
                                 shown.expected, shown.actual))

@@ -57,6 +57,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.baseline": "fail",
     "output.changed": "fail",
     "output.unreadable": "fail",
+    "output.rule": "fail",  # a rule key the output's format cannot honour (key on JSON, say): never ignored
     # notes about the lockfile and what a command did
     "lockfile.note": "info",
 }

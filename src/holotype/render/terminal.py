@@ -17,9 +17,10 @@ SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
 class FindingsTable:
     """One table of findings; output findings carry their error figures in the message column."""
 
-    def __init__(self, report: Report, *, show_info: bool = True) -> None:
+    def __init__(self, report: Report, *, show_info: bool = True, wrap: bool = True) -> None:
         self.report = report
         self.show_info = show_info
+        self.wrap = wrap  # outside a terminal nothing is folded, so paths stay whole in logs
 
     def rows(self) -> list[Finding]:
         rows = [f for f in self.report.findings if self.show_info or f.severity != "info"]
@@ -28,7 +29,9 @@ class FindingsTable:
     def __rich__(self) -> RenderableType:
         rows = self.rows()
         parts: list[RenderableType] = []
-        if rows:
+        if rows and not self.wrap:
+            parts += [self.line(f) for f in rows]
+        elif rows:
             table = Table(show_edge=False, header_style="bold", pad_edge=False, expand=False)
             table.add_column("", no_wrap=True)
             table.add_column("area", no_wrap=True)
@@ -50,6 +53,15 @@ class FindingsTable:
             parts.append(Text(note, style="dim"))
         parts.append(self.verdict())
         return Group(*parts)
+
+    @staticmethod
+    def line(f: Finding) -> Text:
+        """One finding on one line (outside a terminal: nothing folded, so logs keep paths whole)."""
+        text = Text.assemble((f"{SEVERITY_LABEL[f.severity]:<4}", SEVERITY_STYLE[f.severity]),
+                             f"  {f.area:<11} {f.subject}: {f.message}")
+        if f.stats is not None and f.stats.error_decades and f.severity != "info":
+            text.append("\n" + " " * 6 + decade_line(f), style="dim")
+        return text
 
     def verdict(self) -> Text:
         line = summary_line(self.report.command, self.report.counts(), verdict=self.report.verdict)
@@ -103,13 +115,13 @@ def decade_line(f: Finding) -> str:
 
 
 def print_report(console: Console, report: Report, *, show_info: bool = True) -> None:
-    console.print(FindingsTable(report, show_info=show_info))
+    console.print(FindingsTable(report, show_info=show_info, wrap=console.is_terminal))
 
 
 def render_text(report: Report) -> str:
     """The human table as plain text (for --output FILE.txt): wide, so paths are never cut."""
     import io
 
-    console = Console(record=True, width=200, no_color=True, file=io.StringIO())
+    console = Console(record=True, width=100_000, no_color=True, file=io.StringIO())
     print_report(console, report)
     return console.export_text()

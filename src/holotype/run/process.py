@@ -11,13 +11,11 @@ import threading
 import time
 from collections import deque
 from pathlib import Path
-from typing import IO, TYPE_CHECKING, TextIO
+from typing import IO, TextIO
 
 from holotype.records import ProducedOutput, RunResult
+from holotype.run.events import RunEvents
 from holotype.run.plan import Step
-
-if TYPE_CHECKING:
-    from holotype.run.runner import RunEvents
 
 TAIL_LINES = 12
 

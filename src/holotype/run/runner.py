@@ -9,17 +9,10 @@ from __future__ import annotations
 from typing import Protocol
 
 from holotype.records import RunResult
+from holotype.run.events import RunEvents
 from holotype.run.plan import Plan
 from holotype.run.process import run_step
 from holotype.store import ProjectStore
-
-
-class RunEvents(Protocol):
-    """What a progress display hears, keyed by analysis name."""
-
-    def started(self, name: str, index: int, total: int) -> None: ...
-    def output(self, name: str, line: str) -> None: ...
-    def finished(self, name: str, ok: bool, seconds: float) -> None: ...
 
 
 class Runner(Protocol):
