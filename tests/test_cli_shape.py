@@ -237,7 +237,7 @@ def test_python_api_as_a_notebook_uses_it(survey: Path, tmp_path: Path) -> None:
     actual = write(tmp_path / "a.csv", "lake,depth\nA,1.0000001\n")
     code = f"""
 import holotype
-assert set(holotype.__all__) >= {{"compare_results", "check", "replay", "load_project", "Report", "Finding", "HolotypeError"}}
+assert set(holotype.__all__) >= {{"compare_results", "check", "replay", "load_project", "Judgement", "Finding", "HolotypeError"}}
 e = {str(expected)!r}
 a = {str(actual)!r}
 assert holotype.compare_results(e, a, rtol=1e-3).ok

@@ -13,7 +13,7 @@ from pathlib import Path
 import pytest
 
 from conftest import make_venv, run_cli, write
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.lockfile import dump_lock, read_lock
 from holotype.render.junit import render_junit
 from holotype.render.markdown import render_markdown
@@ -53,7 +53,7 @@ def test_junit_failures_equal_json_fail_findings(survey: Path, monkeypatch: pyte
 
 def test_junit_and_markdown_escape_user_strings() -> None:
     nasty = 'a|b <script>"&\'\nnext'
-    report = Report("check", (Finding("data", nasty, "data.changed", nasty, severity="fail"),))
+    report = Judgement("check", (Finding("data", nasty, "data.changed", nasty, severity="fail"),))
     root = ET.fromstring(render_junit(report))
     assert root.find(".//testcase[@name]").get("name") == nasty  # type: ignore[union-attr]
     md = render_markdown(report)

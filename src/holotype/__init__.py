@@ -11,7 +11,7 @@ The Python API, for notebooks and scripts (the command line calls the same funct
     holotype.check(".").ok                    # the project against holotype.lock, running nothing
     holotype.replay(".", ["summary"]).ok      # run analyses again and compare with the baselines
 
-Every function returns a `Report` (findings with severities, `ok`, `to_dict()`), or raises a
+Every function returns a `Judgement` (findings with severities, `ok`, `to_dict()`), or raises a
 `HolotypeError` naming the file or setting when it cannot judge. Names are loaded on first use,
 so `import holotype` stays light. (`holotype.compare` is the comparison engine's package, hence the
 function's longer name.)
@@ -23,7 +23,7 @@ from typing import TYPE_CHECKING, Any
 
 __version__ = "0.2.0"
 
-__all__ = ["Config", "Finding", "HolotypeError", "Report", "check", "compare_results", "load_project", "replay",
+__all__ = ["Config", "Finding", "HolotypeError", "Judgement", "check", "compare_results", "load_project", "replay",
            "__version__"]
 
 if TYPE_CHECKING:
@@ -31,9 +31,9 @@ if TYPE_CHECKING:
 
     from holotype.config import Config
     from holotype.errors import HolotypeError
-    from holotype.findings import Finding, Report
+    from holotype.findings import Finding, Judgement
 
-_LAZY = {"Config": "holotype.config", "Finding": "holotype.findings", "Report": "holotype.findings",
+_LAZY = {"Config": "holotype.config", "Finding": "holotype.findings", "Judgement": "holotype.findings",
          "HolotypeError": "holotype.errors"}
 
 
@@ -47,7 +47,7 @@ def __getattr__(name: str) -> Any:
 
 def compare_results(expected: str | Path, actual: str | Path, *, atol: float | None = None, rtol: float | None = None,
             ulps: int | None = None, digits: float | None = None, key: list[str] | None = None,
-            sign_free: list[str] | None = None, ignore: list[str] | None = None) -> Report:
+            sign_free: list[str] | None = None, ignore: list[str] | None = None) -> Judgement:
     """Compare two result files, or two folders paired by relative path, within the given tolerances.
 
     With no numeric criterion the project default applies (rtol 1e-9, atol 1e-12)."""
@@ -68,7 +68,7 @@ def load_project(folder: str | Path = ".") -> Config:
     return load_config(Path(folder))
 
 
-def check(folder: str | Path = ".", *, strict: bool = False, full: bool = False) -> Report:
+def check(folder: str | Path = ".", *, strict: bool = False, full: bool = False) -> Judgement:
     """The project as it is now against its holotype.lock, running nothing."""
     from pathlib import Path
 
@@ -77,7 +77,7 @@ def check(folder: str | Path = ".", *, strict: bool = False, full: bool = False)
     return check_project(Path(folder), strict=strict, full=full)
 
 
-def replay(folder: str | Path = ".", names: list[str] | None = None, *, twice: bool = False) -> Report:
+def replay(folder: str | Path = ".", names: list[str] | None = None, *, twice: bool = False) -> Judgement:
     """Run the analyses (all, or `names`) with their recorded seeds and compare every output with its baseline."""
     from pathlib import Path
 

@@ -25,7 +25,7 @@ from holotype.render import APPENDIX, FINDINGS
 if TYPE_CHECKING:
     from rich.console import Console
 
-    from holotype.findings import Report
+    from holotype.findings import Judgement
 
 CONTEXT = {"help_option_names": ["--help", "-h"], "max_content_width": 100}
 UNSET = object()
@@ -124,7 +124,7 @@ class Session:
         write_atomic(self.output, text)
         self.say(f"wrote {self.output}")
 
-    def emit(self, report: Report) -> int:
+    def emit(self, report: Judgement) -> int:
         """Render the report: the human table on the terminal (--output FILE also writes FILE); the exit code."""
         from holotype.render import format_for, render_findings
         from holotype.render.terminal import print_report
@@ -179,10 +179,10 @@ def _session(ctx: click.Context, project: Path | None, quiet: bool | None, no_co
                    no_color=bool(no_color if no_color is not None else top.get("no_color")), discover=discover)
 
 
-def findings_command(name: str, *, python: bool = False) -> Callable[[Callable[..., Report]], click.Command]:
-    """A command whose body takes the session (and its own options) and returns a Report to render."""
+def findings_command(name: str, *, python: bool = False) -> Callable[[Callable[..., Judgement]], click.Command]:
+    """A command whose body takes the session (and its own options) and returns a Judgement to render."""
 
-    def decorate(body: Callable[..., Report]) -> click.Command:
+    def decorate(body: Callable[..., Judgement]) -> click.Command:
         @functools.wraps(body)
         @click.pass_context
         def command(ctx: click.Context, /, project: Path | None, quiet: bool | None, no_color: bool | None,
@@ -276,7 +276,7 @@ def start(session: Session) -> None:
 
 @findings_command("record", python=True)
 @click.option("--no-run", is_flag=True, help="Record the environment, data and code only.")
-def record(session: Session, no_run: bool, python: str | None) -> Report:
+def record(session: Session, no_run: bool, python: str | None) -> Judgement:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
     from holotype.commands.record import record_project
     from holotype.render.progress import AnalysisPanel, HashBar
@@ -285,7 +285,7 @@ def record(session: Session, no_run: bool, python: str | None) -> Report:
     try:
         return record_project(session.project, run=not no_run, python=python,
                               hash_progress=HashBar(session.err) if session.interactive else None,
-                              run_progress=panel).report
+                              run_progress=panel)
     finally:
         if panel is not None:
             panel.close()
@@ -294,7 +294,7 @@ def record(session: Session, no_run: bool, python: str | None) -> Report:
 @findings_command("check", python=True)
 @click.option("--full", is_flag=True, help="Hash every file again (no digest cache) and verify every baseline.")
 @click.option("--strict", is_flag=True, help="Treat warnings as failures.")
-def check(session: Session, full: bool, strict: bool, python: str | None) -> Report:
+def check(session: Session, full: bool, strict: bool, python: str | None) -> Judgement:
     """Compare the project as it is now with holotype.lock, running nothing."""
     from holotype.commands.check import check_project
     from holotype.render.progress import HashBar
@@ -307,7 +307,7 @@ def check(session: Session, full: bool, strict: bool, python: str | None) -> Rep
 @click.argument("names", nargs=-1)
 @click.option("--twice", is_flag=True, help="Run each analysis twice and flag outputs that differ.")
 @click.option("--dry-run", is_flag=True, help="Print what would run, with which environment, and run nothing.")
-def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None) -> Report:
+def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None) -> Judgement:
     """Run the analyses (all, or NAMES) with their seeds and compare every output with its baseline."""
     from holotype.commands.replay import replay_project
     from holotype.render.progress import AnalysisPanel
@@ -324,7 +324,7 @@ def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool,
 @findings_command("adopt")
 @click.argument("names", nargs=-1)
 @click.option("--reason", default=None, help="Why the new results replace the recorded ones (required).")
-def adopt(session: Session, names: tuple[str, ...], reason: str | None) -> Report:
+def adopt(session: Session, names: tuple[str, ...], reason: str | None) -> Judgement:
     """Take the outputs of the analyses (all, or NAMES) as the new baselines, and log why."""
     from holotype.commands.adopt import adopt_outputs
 
@@ -344,7 +344,7 @@ def adopt(session: Session, names: tuple[str, ...], reason: str | None) -> Repor
 @click.option("--ignore", multiple=True, help="Skip these columns or JSON paths (globs).")
 def compare(session: Session, expected: Path, actual: Path, atol: float | None, rtol: float | None,
             ulps: int | None, digits: float | None, key: tuple[str, ...], sign_free: tuple[str, ...],
-            ignore: tuple[str, ...]) -> Report:
+            ignore: tuple[str, ...]) -> Judgement:
     """Compare two result files, or two folders paired by relative path, within tolerances."""
     from holotype.commands.compare import compare_inputs, rulebook_from_flags
 
@@ -357,7 +357,7 @@ def compare(session: Session, expected: Path, actual: Path, atol: float | None, 
 @click.argument("a", required=False, type=PATH)
 @click.argument("b", required=False, type=PATH)
 @click.option("--rev", default=None, help="Compare the lock committed at this git revision with the working copy's.")
-def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> Report:
+def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> Judgement:
     """What differs between two lockfiles (A B, or --rev REV against the working copy)."""
     from holotype.commands.diff import diff_files, diff_revision
     from holotype.errors import HolotypeError
@@ -379,7 +379,7 @@ def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> R
 @click.option("--index-url", default=None, help="Passed to the installer.")
 @click.option("--no-index", is_flag=True, help="Passed to the installer.")
 def recreate(session: Session, folder: Path, python: str | None, find_links: tuple[str, ...],
-             index_url: str | None, no_index: bool) -> Report:
+             index_url: str | None, no_index: bool) -> Judgement:
     """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
     from holotype.commands.recreate import InstallerOptions, recreate_environment
 

@@ -7,17 +7,17 @@ from pathlib import Path
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
 from holotype.compare.analyses import check_baselines, compare_analyses, compare_project_seed
+from holotype.compare.digests import compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
-from holotype.compare.files import compare_file_sets
 from holotype.config import load_config
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.store import BaselineStore
 
 
 def verify_project(root: Path, *, command: str = "check", strict: bool = False, full: bool = False,
-                   python: str | None = None, progress: HashProgress | None = None) -> Report:
+                   python: str | None = None, progress: HashProgress | None = None) -> Judgement:
     """Compare interpreter, platform, packages, data, code, seeds and analyses with the lock, running nothing."""
     root = Path(root)
     config = load_config(root, required=False)
@@ -37,5 +37,5 @@ def verify_project(root: Path, *, command: str = "check", strict: bool = False, 
     notes = (f"{len(lock.packages)} packages ({sum(p.used for p in lock.packages.values())} used), "
              f"{len(lock.data)} data files, {len(lock.code)} code files checked against {LOCK_NAME} "
              f"recorded {lock.recorded}",)
-    return Report(command, apply_policy(findings, config.policy, strict=strict), notes=notes,
+    return Judgement(command, apply_policy(findings, config.policy, strict=strict), notes=notes,
                   warnings=config.warnings + lock.notices)

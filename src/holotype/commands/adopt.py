@@ -8,7 +8,7 @@ from pathlib import Path
 from holotype.clock import current_user, timestamp
 from holotype.config import load_config
 from holotype.errors import HolotypeError, InputError
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
 from holotype.records import AnalysisRecord, Change, HistoryEntry, OutputRecord
@@ -16,7 +16,7 @@ from holotype.seeds import derive_seed
 from holotype.store import ProjectStore
 
 
-def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Report:
+def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement:
     """Store each selected analysis' current output files as baselines and append a history entry."""
     root = Path(root)
     if not reason or not reason.strip():
@@ -56,4 +56,4 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Report:
                                          analyses=tuple(a.name for a in analyses), changes=tuple(changes)))
         write_lock(root / LOCK_NAME, lock)
     note = f"adopted {len(changes)} changed output(s) of {', '.join(a.name for a in analyses)}; reason logged"
-    return Report("adopt", apply_policy(findings), notes=(note,), warnings=config.warnings + lock.notices)
+    return Judgement("adopt", apply_policy(findings), notes=(note,), warnings=config.warnings + lock.notices)

@@ -7,7 +7,7 @@ from typing import Any
 
 from holotype.compare.outputs import compare_paths
 from holotype.errors import InputError, ToleranceError
-from holotype.findings import Report
+from holotype.findings import Judgement
 from holotype.findings.policy import apply_policy
 from holotype.tolerance import Rule, RuleBook, default_tolerance, parse_rule_settings
 
@@ -31,11 +31,11 @@ def rulebook_from_flags(atol: float | None = None, rtol: float | None = None, ul
     return RuleBook(default=default_tolerance(parsed), rules=rules)
 
 
-def compare_inputs(expected: Path, actual: Path, rules: RuleBook) -> Report:
+def compare_inputs(expected: Path, actual: Path, rules: RuleBook) -> Judgement:
     """Compare files or folders; unreadable or malformed inputs stop with exit 2."""
     for p in (expected, actual):
         if not p.exists():
             raise InputError("no such file or folder", p)
     if expected.is_dir() != actual.is_dir():
         raise InputError("compare two files or two folders, not one of each", actual)
-    return Report("compare", apply_policy(compare_paths(expected, actual, rules)))
+    return Judgement("compare", apply_policy(compare_paths(expected, actual, rules)))

@@ -8,7 +8,7 @@ from pathlib import Path
 from holotype.compare.locks import diff_locks
 from holotype.config import load_config
 from holotype.errors import HolotypeError
-from holotype.findings import Report
+from holotype.findings import Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, parse_lock, read_lock
 
@@ -31,21 +31,21 @@ def lock_at_revision(root: Path, rev: str) -> tuple[str, Path]:
     return shown.stdout, label
 
 
-def diff_files(a: Path, b: Path, policy_root: Path | None = None) -> Report:
+def diff_files(a: Path, b: Path, policy_root: Path | None = None) -> Judgement:
     """Two lockfiles against each other (policy from the project at `policy_root`, if given)."""
     lock_a, lock_b = read_lock(a), read_lock(b)
     policy = load_config(policy_root, required=False).policy if policy_root else {}
     findings = diff_locks(lock_a, lock_b, a.name if a.name != b.name else str(a), b.name if a.name != b.name
                           else str(b))
-    return Report("diff", apply_policy(findings, policy), notes=(f"{a} → {b}",),
+    return Judgement("diff", apply_policy(findings, policy), notes=(f"{a} → {b}",),
                   warnings=lock_a.notices + lock_b.notices)
 
 
-def diff_revision(root: Path, rev: str) -> Report:
+def diff_revision(root: Path, rev: str) -> Judgement:
     """The lock committed at `rev` against the working copy's."""
     text, label = lock_at_revision(root, rev)
     old = parse_lock(text, label)
     new = read_lock(root / LOCK_NAME)
     findings = diff_locks(old, new, rev, "the working copy")
-    return Report("diff", apply_policy(findings, load_config(root, required=False).policy),
+    return Judgement("diff", apply_policy(findings, load_config(root, required=False).policy),
                   notes=(f"{LOCK_NAME} at {rev} → working copy",), warnings=old.notices + new.notices)

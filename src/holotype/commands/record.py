@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import replace
 from pathlib import Path
 
 from holotype import __version__
@@ -13,7 +13,7 @@ from holotype.compare.runs import failure_finding
 from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
 from holotype.records import AnalysisRecord, LockContents, OutputRecord
@@ -33,11 +33,6 @@ def ensure_seed(config: Config) -> tuple[Config, bool]:
     return replace(config, seed=draw_seed()), True
 
 
-@dataclass
-class RecordOutcome:
-    report: Report
-
-
 def _previous_lock(root: Path) -> LockContents | None:
     try:
         return read_lock(root / LOCK_NAME)
@@ -47,7 +42,7 @@ def _previous_lock(root: Path) -> LockContents | None:
 
 def record_project(root: Path, *, run: bool = True, python: str | None = None,
                    hash_progress: HashProgress | None = None, run_progress: RunEvents | None = None,
-                   runner: Runner | None = None) -> RecordOutcome:
+                   runner: Runner | None = None) -> Judgement:
     """Record the project; on any failure nothing new is written and the report says why."""
     root = Path(root)
     config = load_config(root)
@@ -91,9 +86,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                                                     a.inputs)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
-            return RecordOutcome(Report("record", report_findings,
-                                        notes=("nothing written: the lock and baselines are unchanged",),
-                                        warnings=config.warnings))
+            return Judgement("record", report_findings, warnings=config.warnings,
+                             notes=("nothing written: the lock and baselines are unchanged",))
         for data in pending:
             store.baselines.put(data)
         seed_note = None
@@ -118,4 +112,4 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
     notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
                  f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
                  f"{len(lock.analyses)} analyses")
-    return RecordOutcome(Report("record", report_findings, notes=tuple(notes), warnings=config.warnings))
+    return Judgement("record", report_findings, notes=tuple(notes), warnings=config.warnings)

@@ -12,7 +12,7 @@ from pathlib import Path
 from holotype.atomic import write_atomic
 from holotype.capture.environment import capture_environment, venv_interpreter
 from holotype.errors import HolotypeError, InstallError
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import LockContents
 from holotype.standards.requirements import requirement_line
@@ -74,7 +74,7 @@ def find_interpreter(lock: LockContents) -> str:
 
 
 def recreate_environment(root: Path, target: Path, *, python: str | None = None,
-                        installer: InstallerOptions | None = None) -> Report:
+                        installer: InstallerOptions | None = None) -> Judgement:
     """Create `target`, install every locked package at its exact version and origin (no resolution), check."""
     root = Path(root)
     lock = read_lock(root / LOCK_NAME)
@@ -111,4 +111,4 @@ def recreate_environment(root: Path, target: Path, *, python: str | None = None,
     findings.append(Finding("lockfile", str(target), "lockfile.note",
                             f"built with {base}; installed {len(lines)} package(s) without dependency resolution"))
     checked = verify_project(root, command="recreate", python=venv_python)
-    return Report("recreate", tuple(findings) + checked.findings, notes=checked.notes, warnings=checked.warnings)
+    return Judgement("recreate", tuple(findings) + checked.findings, notes=checked.notes, warnings=checked.warnings)

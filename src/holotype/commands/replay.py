@@ -10,7 +10,7 @@ from holotype.clock import timestamp
 from holotype.compare.analyses import compare_analyses, compare_project_seed
 from holotype.compare.runs import compare_two_runs, compare_with_baselines, failure_finding, ran_finding
 from holotype.config import load_config
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import RunResult
@@ -35,7 +35,7 @@ def plan_findings(plan: Plan, root: Path, how: str) -> list[Finding]:
 
 
 def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = False, python: str | None = None,
-                   dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None) -> Report:
+                   dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None) -> Judgement:
     """Run analyses again and judge every output against its baseline."""
     root = Path(root)
     config = load_config(root)
@@ -50,7 +50,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     findings += [f for f in compare_analyses(config, lock, selected) if f.kind != "analysis.missing"]
     warnings = config.warnings + lock.notices
     if dry_run:
-        return Report("replay", apply_policy(findings + plan_findings(plan, root, how), config.policy),
+        return Judgement("replay", apply_policy(findings + plan_findings(plan, root, how), config.policy),
                       notes=("dry run: nothing was run",), warnings=warnings, verdict=False)
     store = ProjectStore(root)
     store.prepare()
@@ -78,7 +78,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
             findings += [f for f in compare_with_baselines(record, result, store.baselines, config.rulebook)
                          if not (f.subject in unstable and f.kind == "output.mismatch")]
         findings += unstable.values()
-    report = Report("replay", apply_policy(findings, config.policy), warnings=warnings)
+    report = Judgement("replay", apply_policy(findings, config.policy), warnings=warnings)
     store.save_last_replay({"when": timestamp(), "analyses": selected,
                             "outputs": {out: p.sha256 for r in results if r.ok for out, p in r.outputs.items()},
                             **report.to_dict()})

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
+from holotype.compare.digests import compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
-from holotype.compare.files import compare_file_sets
 from holotype.findings import Finding
 from holotype.records import LockContents
 

@@ -19,7 +19,7 @@ from holotype.commands.record import record_project
 from holotype.commands.replay import replay_project
 from holotype.demo.scenario import survey_csv
 from holotype.errors import HolotypeError
-from holotype.findings import Report
+from holotype.findings import Judgement
 from holotype.render.terminal import FindingsTable
 
 SCRIPTS = ("summary", "tests", "pca")
@@ -91,10 +91,10 @@ class Tour:
         self.console.print(Rule(Text(f"{number}. {title}", style="bold"), align="left"))
         self.console.print(words, highlight=False)
 
-    def show(self, report: Report, *, show_info: bool = False) -> None:
+    def show(self, report: Judgement, *, show_info: bool = False) -> None:
         self.console.print(FindingsTable(report, show_info=show_info))
 
-    def expect(self, report: Report, ok: bool, what: str) -> None:
+    def expect(self, report: Judgement, ok: bool, what: str) -> None:
         if report.ok != ok:
             raise HolotypeError(f"the demo expected {what}, but holotype found otherwise; see the table above")
 
@@ -111,9 +111,9 @@ class Tour:
         self.step(2, "Record", "holotype record: interpreter, platform, packages, data and code digests, the "
                                "project seed; then it runs each analysis with its own seed and stores the "
                                "outputs as baselines in .holotype/baselines.")
-        outcome = record_project(folder, python=self.python)
-        self.show(outcome.report, show_info=True)
-        self.expect(outcome.report, True, "a clean record")
+        recorded = record_project(folder, python=self.python)
+        self.show(recorded, show_info=True)
+        self.expect(recorded, True, "a clean record")
 
         self.step(3, "Check and replay, clean", "check compares the project with holotype.lock, running nothing; "
                                                "replay runs every analysis again and compares each output value "

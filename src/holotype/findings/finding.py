@@ -77,7 +77,7 @@ def json_number(x: float) -> float | str:
 
 
 @dataclass(frozen=True)
-class Report:
+class Judgement:
     """What a command hands to a renderer."""
 
     command: str

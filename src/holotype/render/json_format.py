@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import json
 
-from holotype.findings import Report
+from holotype.findings import Judgement
 
 
-def render_json(report: Report) -> str:
+def render_json(report: Judgement) -> str:
     return json.dumps(report.to_dict(), indent=2, ensure_ascii=False, default=str) + "\n"

@@ -4,10 +4,10 @@ from __future__ import annotations
 
 import xml.etree.ElementTree as ET
 
-from holotype.findings import AREAS, Finding, Report
+from holotype.findings import AREAS, Finding, Judgement
 
 
-def render_junit(report: Report) -> str:
+def render_junit(report: Judgement) -> str:
     """JUnit XML that CI systems display natively; every user-controlled string is escaped by ElementTree."""
     root = ET.Element("testsuites", name=f"holotype {report.command}")
     by_area: dict[str, dict[str, list[Finding]]] = {}

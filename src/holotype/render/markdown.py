@@ -2,7 +2,7 @@
 
 from __future__ import annotations
 
-from holotype.findings import Report
+from holotype.findings import Judgement
 from holotype.findings.policy import SEVERITY_ORDER
 from holotype.findings.summary import summary_line
 
@@ -15,7 +15,7 @@ def cell(text: object) -> str:
     return value.replace("\\", "\\\\").replace("|", "\\|").replace("\r", "").replace("\n", "<br>")
 
 
-def render_markdown(report: Report) -> str:
+def render_markdown(report: Judgement) -> str:
     summary = summary_line(report.command, report.counts(), verdict=report.verdict)
     mark = "" if not report.verdict else "✅ " if report.ok else "❌ "
     lines = [f"### holotype {report.command}", "", f"**{mark}{cell(summary)}**", ""]

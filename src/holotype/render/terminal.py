@@ -6,7 +6,7 @@ from rich.console import Console, Group, RenderableType
 from rich.table import Table
 from rich.text import Text
 
-from holotype.findings import Finding, Report
+from holotype.findings import Finding, Judgement
 from holotype.findings.policy import SEVERITY_ORDER
 from holotype.findings.summary import summary_line, verdict_word
 
@@ -17,7 +17,7 @@ SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
 class FindingsTable:
     """One table of findings; output findings carry their error figures in the message column."""
 
-    def __init__(self, report: Report, *, show_info: bool = True, wrap: bool = True) -> None:
+    def __init__(self, report: Judgement, *, show_info: bool = True, wrap: bool = True) -> None:
         self.report = report
         self.show_info = show_info
         self.wrap = wrap  # outside a terminal nothing is folded, so paths stay whole in logs
@@ -114,11 +114,11 @@ def decade_line(f: Finding) -> str:
     return "relative errors: " + " · ".join(f"{k} {v}" for k, v in items) + f" (tolerance {f.stats.tolerance})"
 
 
-def print_report(console: Console, report: Report, *, show_info: bool = True) -> None:
+def print_report(console: Console, report: Judgement, *, show_info: bool = True) -> None:
     console.print(FindingsTable(report, show_info=show_info, wrap=console.is_terminal))
 
 
-def render_text(report: Report) -> str:
+def render_text(report: Judgement) -> str:
     """The human table as plain text (for --output FILE.txt): wide, so paths are never cut."""
     import io
 
