@@ -115,3 +115,16 @@ def wheelhouse(tmp_path_factory: pytest.TempPathFactory) -> Path:
     build_wheel(folder, "gamma", "1.0")
     build_wheel(folder, "gamma", "2.0")
     return folder
+
+
+@pytest.fixture
+def survey(tmp_path: Path) -> Path:
+    """A small recorded project whose analysis runs on this interpreter."""
+    root = tmp_path / "lab"
+    write(root / "data" / "a.csv", "x\n1\n2\n")
+    write(root / "run.py", "import os, json\nos.makedirs('out', exist_ok=True)\n"
+                           "json.dump({'mean': 1.5 * (1 + float(os.environ.get('SHIFT', '0')))}, open('out/r.json', 'w'))\n")
+    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 9\n\n'
+                                  '[analyses.mean]\ncommand = "python run.py"\noutputs = ["out/r.json"]\n')
+    assert run_cli("record", "-C", root).code == 0
+    return root

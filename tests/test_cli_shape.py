@@ -16,18 +16,6 @@ from conftest import FIXTURES, run_cli, write
 LONG = "a_rather_long_folder_name_for_results_of_the_survey/and_a_subfolder_named_at_length"
 
 
-@pytest.fixture
-def survey(tmp_path: Path) -> Path:
-    root = tmp_path / "lab"
-    write(root / "data" / "a.csv", "x\n1\n2\n")
-    write(root / "run.py", "import os, json\nos.makedirs('out', exist_ok=True)\n"
-                           "json.dump({'mean': 1.5}, open('out/r.json', 'w'))\n")
-    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 9\n\n'
-                                  '[analyses.mean]\ncommand = "python run.py"\noutputs = ["out/r.json"]\n')
-    assert run_cli("record", "-C", root).code == 0
-    return root
-
-
 def holotype(*args: str | os.PathLike[str], cwd: Path | None = None) -> subprocess.CompletedProcess[str]:
     """The installed command in a subprocess, output through pipes (not a terminal)."""
     return subprocess.run([sys.executable, "-m", "holotype", *map(str, args)], cwd=cwd, capture_output=True,

@@ -5,7 +5,6 @@ from __future__ import annotations
 import json
 import os
 import subprocess
-import sys
 import xml.etree.ElementTree as ET
 from html.parser import HTMLParser
 from pathlib import Path
@@ -17,20 +16,6 @@ from holotype.findings import Finding, Judgement
 from holotype.lockfile import dump_lock, read_lock
 from holotype.render.junit import render_junit
 from holotype.render.markdown import render_markdown
-
-
-@pytest.fixture
-def survey(tmp_path: Path) -> Path:
-    """A small recorded project whose analysis runs on this interpreter."""
-    root = tmp_path / "lab"
-    write(root / "data" / "a.csv", "x\n1\n2\n")
-    write(root / "run.py", "import os, json\nos.makedirs('out', exist_ok=True)\n"
-                           "json.dump({'mean': 1.5 * (1 + float(os.environ.get('SHIFT', '0')))}, open('out/r.json', 'w'))\n")
-    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 9\n\n'
-                                  '[analyses.mean]\ncommand = "python run.py"\noutputs = ["out/r.json"]\n')
-    assert run_cli("record", "-C", root).code == 0
-    return root
-
 
 # ----------------------------------------------------------------------------- JUnit and Markdown
 

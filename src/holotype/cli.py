@@ -274,9 +274,18 @@ def start(session: Session) -> None:
     session.say(f"wrote {path}; edit it, then run 'holotype record'")
 
 
+def _parallel(f: Callable[..., Any]) -> Callable[..., Any]:
+    f = click.option("--cluster", default=None, metavar="ADDRESS",
+                     help="Run the analyses on a Dask cluster: a scheduler address (tcp://host:8786) or the path "
+                          "of a scheduler file (needs holotype[cluster]; default: the config's cluster key).")(f)
+    return click.option("--jobs", "-j", type=click.IntRange(1, 4096), default=None,
+                        help="Analyses at once (default: usable CPUs / threads; 1 runs them one after another).")(f)
+
+
 @findings_command("record", python=True)
 @click.option("--no-run", is_flag=True, help="Record the environment, data and code only.")
-def record(session: Session, no_run: bool, python: str | None) -> Judgement:
+@_parallel
+def record(session: Session, no_run: bool, python: str | None, jobs: int | None, cluster: str | None) -> Judgement:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
     from holotype.commands.record import record_project
     from holotype.render.progress import AnalysisPanel, HashBar
@@ -285,7 +294,7 @@ def record(session: Session, no_run: bool, python: str | None) -> Judgement:
     try:
         return record_project(session.project, run=not no_run, python=python,
                               hash_progress=HashBar(session.err) if session.interactive else None,
-                              run_progress=panel)
+                              run_progress=panel, jobs=jobs, cluster=cluster)
     finally:
         if panel is not None:
             panel.close()
@@ -307,7 +316,9 @@ def check(session: Session, full: bool, strict: bool, python: str | None) -> Jud
 @click.argument("names", nargs=-1)
 @click.option("--twice", is_flag=True, help="Run each analysis twice and flag outputs that differ.")
 @click.option("--dry-run", is_flag=True, help="Print what would run, with which environment, and run nothing.")
-def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None) -> Judgement:
+@_parallel
+def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool, python: str | None,
+           jobs: int | None, cluster: str | None) -> Judgement:
     """Run the analyses (all, or NAMES) with their seeds and compare every output with its baseline."""
     from holotype.commands.replay import replay_project
     from holotype.render.progress import AnalysisPanel
@@ -315,7 +326,7 @@ def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool,
     panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
     try:
         return replay_project(session.project, list(names), twice=twice, python=python, dry_run=dry_run,
-                              progress=panel)
+                              progress=panel, jobs=jobs, cluster=cluster)
     finally:
         if panel is not None:
             panel.close()

@@ -17,7 +17,7 @@ from holotype.tolerance import DEFAULT_TOLERANCE, RULE_KEYS, Rule, RuleBook, def
 CONFIG_NAME = "holotype.toml"
 TOP_KEYS = (
     "python", "data", "code", "exclude", "seed", "threads", "seed_globals",
-    "tolerance", "rules", "analyses", "policy", "allow_outside",
+    "tolerance", "rules", "analyses", "policy", "allow_outside", "cluster",
 )
 ANALYSIS_KEYS = ("command", "outputs", "inputs", "timeout")
 MAX_SEED = 2**63 - 1
@@ -48,6 +48,7 @@ class Config:
     analyses: tuple[Analysis, ...] = ()
     policy: dict[str, str] = field(default_factory=dict)
     allow_outside: bool = False
+    cluster: str | None = None  # a Dask scheduler address or scheduler file: where analyses run
     warnings: tuple[str, ...] = ()
 
     def analysis(self, name: str) -> Analysis:
@@ -269,6 +270,10 @@ def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
         raise v.fail(f"'python' should be a path to an interpreter, found {python!r}")
     seed = doc.get("seed")
     threads = doc.get("threads")
+    cluster = doc.get("cluster")
+    if cluster is not None and (not isinstance(cluster, str) or not cluster.strip() or "\x00" in cluster):
+        raise v.fail(f"'cluster' should be a Dask scheduler address like \"tcp://host:8786\" or the path of a "
+                     f"scheduler file, found {cluster!r}")
     return Config(
         root=root,
         source=source,
@@ -283,6 +288,7 @@ def config_from_dict(doc: dict[str, Any], root: Path, source: Path) -> Config:
         analyses=_analyses(doc, v),
         policy=_policy(doc, v),
         allow_outside=bool(allow_outside),
+        cluster=cluster,
         warnings=tuple(v.warnings),
     )
 

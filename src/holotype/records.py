@@ -178,6 +178,7 @@ class RunResult:
     outputs: dict[str, ProducedOutput] = field(default_factory=dict)
     missing: list[str] = field(default_factory=list)
     error: str | None = None
+    wrote_others: list[tuple[str, str]] = field(default_factory=list)  # (output, the analysis that declares it)
 
     @property
     def ok(self) -> bool:

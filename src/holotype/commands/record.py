@@ -9,7 +9,7 @@ from holotype import __version__
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
 from holotype.clock import timestamp
-from holotype.compare.runs import failure_finding
+from holotype.compare.runs import failure_finding, foreign_write_findings
 from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
@@ -19,7 +19,7 @@ from holotype.lockfile import LOCK_NAME, read_lock, write_lock
 from holotype.records import AnalysisRecord, LockContents, OutputRecord
 from holotype.run.events import RunEvents
 from holotype.run.plan import make_plan
-from holotype.run.runner import Runner, SerialRunner
+from holotype.run.runner import Runner, make_runner
 from holotype.seeds import derive_seed, draw_seed
 from holotype.store import ProjectStore
 
@@ -42,7 +42,7 @@ def _previous_lock(root: Path) -> LockContents | None:
 
 def record_project(root: Path, *, run: bool = True, python: str | None = None,
                    hash_progress: HashProgress | None = None, run_progress: RunEvents | None = None,
-                   runner: Runner | None = None) -> Judgement:
+                   runner: Runner | None = None, jobs: int | None = None, cluster: str | None = None) -> Judgement:
     """Record the project; on any failure nothing new is written and the report says why."""
     root = Path(root)
     config = load_config(root)
@@ -63,7 +63,14 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         pending: list[bytes] = []
         if run:
             plan = make_plan(config, capture.python, config.select(None), config.seed)
-            for result in (runner or SerialRunner(store)).run(plan, run_progress):
+            runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
+                                           digest_file=config.source.name if config.source else LOCK_NAME)
+            try:
+                results = runner.run(plan, run_progress)
+            finally:
+                runner.close()
+            for result in results:
+                findings += foreign_write_findings(result)
                 if not result.ok:
                     findings.append(failure_finding(result, root))
                     continue

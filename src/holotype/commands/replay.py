@@ -8,7 +8,13 @@ from pathlib import Path
 from holotype.capture.environment import resolve_python
 from holotype.clock import timestamp
 from holotype.compare.analyses import compare_analyses, compare_project_seed
-from holotype.compare.runs import compare_two_runs, compare_with_baselines, failure_finding, ran_finding
+from holotype.compare.runs import (
+    compare_two_runs,
+    compare_with_baselines,
+    failure_finding,
+    foreign_write_findings,
+    ran_finding,
+)
 from holotype.config import load_config
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
@@ -16,7 +22,7 @@ from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import RunResult
 from holotype.run.events import RunEvents
 from holotype.run.plan import Plan, make_plan
-from holotype.run.runner import Runner, SerialRunner
+from holotype.run.runner import Runner, make_runner
 from holotype.store import ProjectStore
 
 
@@ -35,7 +41,8 @@ def plan_findings(plan: Plan, root: Path, how: str) -> list[Finding]:
 
 
 def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = False, python: str | None = None,
-                   dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None) -> Judgement:
+                   dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None,
+                   jobs: int | None = None, cluster: str | None = None) -> Judgement:
     """Run analyses again and judge every output against its baseline."""
     root = Path(root)
     config = load_config(root)
@@ -54,12 +61,17 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
                       notes=("dry run: nothing was run",), warnings=warnings, verdict=False)
     store = ProjectStore(root)
     store.prepare()
-    runner = runner or SerialRunner(store)
-    results = runner.run(plan, progress)
-    seconds: dict[str, RunResult] = {}
-    if twice:
-        seconds = {r.name: r for r in runner.run(plan, progress, log_suffix=".second")}
+    runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
+                                   digest_file=LOCK_NAME)
+    try:
+        results = runner.run(plan, progress)
+        seconds: dict[str, RunResult] = {}
+        if twice:
+            seconds = {r.name: r for r in runner.run(plan, progress, log_suffix=".second")}
+    finally:
+        runner.close()
     for result in results:
+        findings += foreign_write_findings(result)
         record = lock.analyses.get(result.name)
         if not result.ok:
             findings.append(failure_finding(result, root))

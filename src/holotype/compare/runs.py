@@ -27,6 +27,14 @@ def failure_finding(result: RunResult, root: Path) -> Finding:
     return Finding("analysis", result.name, "analysis.failed", f"{result.failure_text()} (log: {log})")
 
 
+def foreign_write_findings(result: RunResult) -> list[Finding]:
+    """Outputs another analysis declares that changed while this one ran (and their owner did not)."""
+    return [Finding("output", out, "output.foreign_write",
+                    f"changed while '{result.name}' ran, but '{owner}' declares it: results would depend on the "
+                    "order analyses run in; let one analysis write each file", owner, result.name)
+            for out, owner in result.wrote_others]
+
+
 def ran_finding(result: RunResult) -> Finding:
     return Finding("analysis", result.name, "analysis.ran", f"ran in {result.seconds:.1f}s with seed {result.seed}")
 

@@ -58,6 +58,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.changed": "fail",
     "output.unreadable": "fail",
     "output.rule": "fail",  # a rule key the output's format cannot honour (key on JSON, say): never ignored
+    "output.foreign_write": "fail",  # an analysis wrote a file another analysis declares as its output
     # notes about the lockfile and what a command did
     "lockfile.note": "info",
 }

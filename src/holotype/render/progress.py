@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import threading
 import time
 from collections import deque
 
@@ -10,11 +11,9 @@ from rich.live import Live
 from rich.progress import (
     BarColumn,
     DownloadColumn,
-    MofNCompleteColumn,
     Progress,
     TaskID,
     TextColumn,
-    TimeElapsedColumn,
     TimeRemainingColumn,
     TransferSpeedColumn,
 )
@@ -57,34 +56,42 @@ class HashBar:
 
 
 class AnalysisPanel:
-    """Names the running analysis, its elapsed time and a live tail of what it prints."""
+    """Every running analysis with its elapsed time, a live tail of what they print, and each finished one
+    with its duration. Safe to call from the runner's threads (output lines arrive from several at once)."""
 
     def __init__(self, console: Console, tail_lines: int = 6) -> None:
         self.console = console
         self.tail: deque[str] = deque(maxlen=tail_lines)
-        self.progress = Progress(TextColumn("[bold]{task.description}"), BarColumn(), MofNCompleteColumn(),
-                                 TimeElapsedColumn(), console=console)
-        self.task = self.progress.add_task("analyses", total=None)
+        self.running: dict[str, float] = {}
+        self.done = 0
+        self.total = 0
         self.live: Live | None = None
+        self._lock = threading.Lock()
 
-    def _view(self) -> Group:
-        lines = [Text("  " + line[:160], style="dim") for line in self.tail]
-        return Group(self.progress, *lines)
+    def __rich__(self) -> Group:
+        with self._lock:
+            now = time.monotonic()
+            lines = [Text(f"{self.done}/{self.total} analyses done", style="bold")]
+            lines += [Text(f"  running {name}  {now - since:.1f}s") for name, since in self.running.items()]
+            lines += [Text("  " + line[:160], style="dim") for line in self.tail]
+        return Group(*lines)
 
     def started(self, name: str, index: int, total: int) -> None:
+        with self._lock:
+            self.total = total
+            self.running[name] = time.monotonic()
         if self.live is None:
-            self.live = Live(self._view(), console=self.console, refresh_per_second=8, transient=True)
+            self.live = Live(self, console=self.console, refresh_per_second=8, transient=True)
             self.live.start()
-        self.tail.clear()
-        self.progress.reset(self.task, total=total, completed=index, description=f"running {name}")
 
     def output(self, name: str, line: str) -> None:
-        self.tail.append(line)
-        if self.live is not None:
-            self.live.update(self._view())
+        with self._lock:
+            self.tail.append(f"{name}: {line}" if len(self.running) > 1 else line)
 
     def finished(self, name: str, ok: bool, seconds: float) -> None:
-        self.progress.advance(self.task)
+        with self._lock:
+            self.running.pop(name, None)
+            self.done += 1
         mark = "[green]✓[/]" if ok else "[red]✗[/]"
         self.console.print(f"{mark} {name} ({seconds:.1f}s)")
 

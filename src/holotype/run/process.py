@@ -18,6 +18,40 @@ from holotype.run.events import RunEvents
 from holotype.run.plan import Step
 
 TAIL_LINES = 12
+GRACE_SECONDS = 3.0  # between TERM and KILL when holotype stops a group
+
+
+class LiveGroups:
+    """The process groups of analyses running now in this process, so an interrupt can stop them all."""
+
+    def __init__(self) -> None:
+        self._lock = threading.Lock()
+        self._procs: dict[int, subprocess.Popen[bytes]] = {}
+
+    def add(self, proc: subprocess.Popen[bytes]) -> None:
+        with self._lock:
+            self._procs[proc.pid] = proc
+
+    def discard(self, proc: subprocess.Popen[bytes]) -> None:
+        with self._lock:
+            self._procs.pop(proc.pid, None)
+
+    def stop_all(self) -> None:
+        """TERM every live group, then KILL what is left after a grace period."""
+        with self._lock:
+            procs = list(self._procs.values())
+        for proc in procs:
+            _signal_group(proc, signal.SIGTERM)
+        deadline = time.monotonic() + GRACE_SECONDS
+        for proc in procs:
+            try:
+                proc.wait(timeout=max(0.0, deadline - time.monotonic()))
+            except subprocess.TimeoutExpired:
+                pass
+            _signal_group(proc, signal.SIGKILL)
+
+
+LIVE = LiveGroups()
 
 
 def _stamp(path: Path) -> tuple[int, int, int, int] | None:
@@ -39,11 +73,16 @@ def _pump(stream: IO[bytes], log: TextIO, tail: deque[str], name: str, events: R
     stream.close()
 
 
-def _kill_group(proc: subprocess.Popen[bytes]) -> None:
+def _signal_group(proc: subprocess.Popen[bytes], sig: int) -> None:
     try:
-        os.killpg(proc.pid, signal.SIGKILL)  # the whole process group: children too
+        os.killpg(proc.pid, sig)  # the whole process group: children too
+    except ProcessLookupError:
+        pass
     except (OSError, AttributeError):  # no process groups (Windows): the process itself
-        proc.kill()
+        if sig == signal.SIGKILL:
+            proc.kill()
+        else:
+            proc.terminate()
 
 
 def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | None], result: RunResult) -> None:
@@ -77,16 +116,24 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
             log.flush()
             proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=step.env, stdin=subprocess.DEVNULL,
                                     stdout=subprocess.PIPE, stderr=subprocess.STDOUT, start_new_session=True)
-            assert proc.stdout is not None
-            reader = threading.Thread(target=_pump, args=(proc.stdout, log, tail, step.name, events), daemon=True)
-            reader.start()
+            LIVE.add(proc)
             try:
-                proc.wait(timeout=step.timeout)
-            except subprocess.TimeoutExpired:
-                result.timed_out = True
-                _kill_group(proc)
-            reader.join(timeout=5)
-            result.returncode = proc.wait()
+                assert proc.stdout is not None
+                reader = threading.Thread(target=_pump, args=(proc.stdout, log, tail, step.name, events),
+                                          daemon=True)
+                reader.start()
+                try:
+                    proc.wait(timeout=step.timeout)
+                except subprocess.TimeoutExpired:
+                    result.timed_out = True
+                    _signal_group(proc, signal.SIGKILL)
+                except BaseException:  # Ctrl-C or SIGTERM while waiting: the analysis must not outlive holotype
+                    LIVE.stop_all()
+                    raise
+                reader.join(timeout=5)
+                result.returncode = proc.wait()
+            finally:
+                LIVE.discard(proc)
     except FileNotFoundError:
         result.error = f"command not found: {step.argv[0] if step.argv else '(empty)'}"
     except OSError as exc:
