@@ -6,6 +6,8 @@ import os
 import tempfile
 from pathlib import Path
 
+from holotype.errors import WriteError
+
 TEMP_PREFIX = ".holotype-tmp-"
 
 
@@ -23,8 +25,18 @@ def _fsync_folder(folder: Path) -> None:
 
 
 def write_atomic(path: Path, data: bytes | str, *, mode: int | None = None) -> None:
-    """Write `data` to `path` by temp file in the same folder, flush, fsync, rename, fsync folder."""
-    path = Path(path)
+    """Write `data` to `path` by temp file in the same folder, flush, fsync, rename, fsync folder.
+
+    Any failure (disk full, a read-only folder) leaves the old file and raises WriteError naming `path`."""
+    try:
+        _write_atomic(Path(path), data, mode)
+    except OSError as exc:
+        if isinstance(exc, WriteError):
+            raise
+        raise WriteError(f"cannot write: {exc.strerror or exc}", path) from None
+
+
+def _write_atomic(path: Path, data: bytes | str, mode: int | None) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     payload = data.encode("utf-8") if isinstance(data, str) else data
     fd, tmp_name = tempfile.mkstemp(prefix=TEMP_PREFIX, dir=path.parent)

@@ -10,8 +10,9 @@ from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
 from typing import Any
 
-from holotype.errors import ConfigError, SeedError, ToleranceError
+from holotype.errors import ConfigError, InputError, SeedError, ToleranceError
 from holotype.findings.policy import DEFAULT_SEVERITY, SEVERITIES
+from holotype.safe_files import read_regular
 from holotype.tolerance import DEFAULT_TOLERANCE, RULE_KEYS, Rule, RuleBook, default_tolerance, parse_rule_settings
 
 CONFIG_NAME = "holotype.toml"
@@ -302,11 +303,14 @@ def _glob_list(doc: dict[str, Any], key: str, v: _Validator) -> list[str]:
     return value
 
 
+MAX_CONFIG_BYTES = 16 << 20
+
+
 def _read_toml(path: Path) -> dict[str, Any]:
     try:
-        raw = path.read_bytes()
-    except OSError as exc:
-        raise ConfigError(f"cannot read: {exc.strerror}", path) from None
+        raw = read_regular(path, limit=MAX_CONFIG_BYTES)
+    except InputError as exc:
+        raise ConfigError(exc.detail, path) from None
     try:
         return tomllib.loads(raw.decode("utf-8"))
     except UnicodeDecodeError as exc:
@@ -319,14 +323,14 @@ def _read_toml(path: Path) -> dict[str, Any]:
 
 def holds_project(folder: Path) -> bool:
     """Whether `folder` has a holotype.toml, or a pyproject.toml with a [tool.holotype] table."""
-    if (folder / CONFIG_NAME).is_file():
+    if (folder / CONFIG_NAME).exists():
         return True
     pyproject = folder / "pyproject.toml"
-    if not pyproject.is_file():
+    if not pyproject.exists():
         return False
     try:
-        doc = tomllib.loads(pyproject.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError, RecursionError):
+        doc = tomllib.loads(read_regular(pyproject, limit=MAX_CONFIG_BYTES).decode("utf-8"))
+    except (InputError, UnicodeDecodeError, tomllib.TOMLDecodeError, RecursionError):
         return False
     tool = doc.get("tool")
     return isinstance(tool, dict) and "holotype" in tool

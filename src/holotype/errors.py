@@ -67,5 +67,9 @@ class BaselineError(HolotypeError):
     """A baseline object is missing, unreadable or does not match its digest."""
 
 
+class WriteError(HolotypeError, OSError):
+    """A file holotype had to write could not be written (disk full, read-only folder); names the file."""
+
+
 class InstallError(HolotypeError):
     """Building an environment (recreate) failed; the message carries the installer's reason."""

@@ -6,19 +6,22 @@ them. Format 1 (holotype 0.1) is still read: it is converted in memory and the u
 
 from __future__ import annotations
 
+import os
 import tomllib
 from pathlib import Path
 from typing import Any
 
 from holotype.atomic import write_atomic
-from holotype.errors import LockfileError
+from holotype.errors import InputError, LockfileError
 from holotype.records import ORIGIN_KINDS, LockContents
+from holotype.safe_files import read_regular
 from holotype.schema import SchemaError, from_table, to_table
 
 FORMAT = 2
 LOCK_NAME = "holotype.lock"
 HEADER = "# Written by holotype; do not edit by hand. Format described in holotype's docs/lockfile.md.\n"
 TRAILER = "# end of holotype.lock\n"
+MAX_LOCK_BYTES = 1 << 30
 
 
 def lock_to_dict(lock: LockContents) -> dict[str, Any]:
@@ -106,12 +109,12 @@ def parse_lock(text: str, path: Path) -> LockContents:
 
 def read_lock(path: Path) -> LockContents:
     """Read and validate a lockfile."""
+    if not os.path.lexists(path):
+        raise LockfileError("no lockfile here; run 'holotype record' first", path)
     try:
-        raw = Path(path).read_bytes()
-    except FileNotFoundError:
-        raise LockfileError("no lockfile here; run 'holotype record' first", path) from None
-    except OSError as exc:
-        raise LockfileError(f"cannot read: {exc.strerror}", path) from None
+        raw = read_regular(path, limit=MAX_LOCK_BYTES)
+    except InputError as exc:
+        raise LockfileError(exc.detail, path) from None
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import os
+import stat
 import threading
 from collections import deque
 from dataclasses import dataclass, field
@@ -52,12 +54,23 @@ def _buffer() -> bytearray:
     return buf
 
 
+_OPEN_FLAGS = (os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_NONBLOCK", 0)
+               | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
+
+
 def sha256_file(path: str | os.PathLike[str], counter: _Counter | None = None) -> str:
-    """Stream the file through SHA-256 (FIPS 180-4) in 1 MiB chunks."""
+    """Stream the file through SHA-256 (FIPS 180-4) in 1 MiB chunks.
+
+    Opened without following a link and without blocking, then checked to be a regular file, so a file
+    swapped for a link, a FIFO or a device while holotype works is refused (as OSError), never read."""
     h = hashlib.sha256()
     buf = _buffer()
     view = memoryview(buf)
-    with open(path, "rb", buffering=0) as fh:
+    fd = os.open(path, _OPEN_FLAGS)
+    if not stat.S_ISREG(os.fstat(fd).st_mode):
+        os.close(fd)
+        raise OSError(errno.EINVAL, "not a regular file (a link, pipe or device took its place)")
+    with open(fd, "rb", buffering=0) as fh:
         while True:
             n = fh.readinto(buf)
             if not n:

@@ -7,6 +7,11 @@ import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from holotype.errors import InputError
+from holotype.safe_files import read_regular
+
+MAX_SOURCE_BYTES = 64 << 20  # a source file or notebook larger than this is reported, not parsed
+
 
 @dataclass
 class ImportScan:
@@ -56,9 +61,9 @@ def scan_imports(files: list[tuple[str, Path]]) -> ImportScan:
     scan = ImportScan()
     for rel, path in files:
         try:
-            raw = path.read_bytes()
-        except OSError as exc:
-            scan.problems.append((rel, f"cannot read: {exc.strerror}"))
+            raw = read_regular(path, limit=MAX_SOURCE_BYTES)
+        except InputError as exc:
+            scan.problems.append((rel, exc.detail))
             continue
         if rel.endswith(".ipynb"):
             try:

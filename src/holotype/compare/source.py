@@ -4,13 +4,12 @@ from __future__ import annotations
 
 import hashlib
 import io
-import os
-import stat
 from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
 
-from holotype.errors import UnreadableOutput
+from holotype.errors import InputError, UnreadableOutput
+from holotype.safe_files import open_regular, read_input
 
 
 @dataclass(frozen=True)
@@ -25,15 +24,11 @@ class Source:
         """A file to compare. A pipe (`<(zcat baseline)`) can be read only once, so it is read now."""
         name = name or Path(path).name
         try:
-            mode = os.stat(path).st_mode
-        except OSError as exc:
-            raise UnreadableOutput(f"cannot read: {exc.strerror}", str(path)) from None
-        if not stat.S_ISREG(mode):
-            try:
-                with open(path, "rb") as fh:
-                    return cls(name, str(path), data=fh.read())
-            except OSError as exc:
-                raise UnreadableOutput(f"cannot read: {exc.strerror}", str(path)) from None
+            piped = read_input(path)
+        except InputError as exc:
+            raise UnreadableOutput(exc.detail, str(path)) from None
+        if piped is not None:
+            return cls(name, str(path), data=piped)
         return cls(name, str(path), path=Path(path))
 
     @classmethod
@@ -45,9 +40,9 @@ class Source:
             return io.BytesIO(self.data)
         assert self.path is not None
         try:
-            return open(self.path, "rb")
-        except OSError as exc:
-            raise UnreadableOutput(f"cannot read: {exc.strerror}", self.label) from None
+            return open_regular(self.path, follow=True)
+        except InputError as exc:
+            raise UnreadableOutput(exc.detail, self.label) from None
 
     def read_bytes(self) -> bytes:
         if self.data is not None:
