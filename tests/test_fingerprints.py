@@ -180,7 +180,9 @@ def test_corrupt_cache_is_rebuilt(tmp_path: Path, monkeypatch: pytest.MonkeyPatc
 
     monkeypatch.setattr(dc, "RACY_SECONDS", 0.0)
     path = tmp_path / "c.sqlite3"
-    path.write_bytes(b"this is not a database" * 100)
+    DigestCache(path).close()  # a cache holotype wrote (its header names holotype) ...
+    header = path.read_bytes()[:100]
+    path.write_bytes(header + b"this is not a database" * 100)  # ... damaged past the header
     write(tmp_path / "d" / "a.csv", "x\n")
     files, _ = ProjectWalker(tmp_path).collect(("d",))
     result = fingerprint_files(files, cache=DigestCache(path))

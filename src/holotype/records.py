@@ -179,10 +179,13 @@ class RunResult:
     missing: list[str] = field(default_factory=list)
     error: str | None = None
     wrote_others: list[tuple[str, str]] = field(default_factory=list)  # (output, the analysis that declares it)
+    left_children: bool = False  # processes of its group were still running after it exited (then stopped)
+    refused: dict[str, str] = field(default_factory=dict)  # outputs that are links, pipes or devices: why
 
     @property
     def ok(self) -> bool:
-        return self.error is None and self.returncode == 0 and not self.timed_out and not self.missing
+        return (self.error is None and self.returncode == 0 and not self.timed_out and not self.missing
+                and not self.refused)
 
     def failure_text(self) -> str:
         if self.error:
@@ -192,4 +195,6 @@ class RunResult:
             return f"timed out after {self.timeout or 0:g}s" + (f"; last output: {tail}" if tail else "")
         if self.returncode != 0:
             return f"exited with code {self.returncode}" + (f": {tail}" if tail else "")
+        if self.refused:
+            return "; ".join(f"{out}: {why}" for out, why in sorted(self.refused.items()))
         return "did not write " + ", ".join(self.missing)

@@ -9,8 +9,11 @@ from __future__ import annotations
 
 import os
 import sqlite3
+import stat
 import time
 from pathlib import Path
+
+from holotype.errors import HolotypeError
 
 RACY_SECONDS = 2.0
 _SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
@@ -35,6 +38,9 @@ def default_cache_path() -> Path:
     return Path(user_cache_dir("holotype", appauthor=False)) / "digests.sqlite3"
 
 
+APPLICATION_ID = 0x486F6C6F  # "Holo": SQLite's header field that names the program owning a database file
+
+
 class DigestCache:
     """SQLite-backed; safe for concurrent holotype runs (WAL, busy timeout, short transactions)."""
 
@@ -48,16 +54,58 @@ class DigestCache:
         conn = sqlite3.connect(self.path, timeout=30, isolation_level=None, check_same_thread=False)
         conn.execute("PRAGMA journal_mode=WAL")
         conn.execute(_SCHEMA)
+        conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
         conn.execute("SELECT count(*) FROM digests WHERE dev = -1").fetchone()
         return conn
 
+    def _ours(self) -> bool | None:
+        """True: holotype wrote this file (its SQLite application id says so); None: no file yet; False: not ours."""
+        try:
+            st = os.lstat(self.path)
+        except FileNotFoundError:
+            return None
+        except OSError:
+            return False
+        if not stat.S_ISREG(st.st_mode):
+            return False
+        try:
+            with open(self.path, "rb") as fh:
+                header = fh.read(100)
+        except OSError:
+            return False
+        if not header:
+            return None  # empty (another holotype is creating it this moment): nothing to lose
+        if len(header) < 100 or not header.startswith(b"SQLite format 3\x00"):
+            return False
+        app_id = int.from_bytes(header[68:72], "big")
+        if app_id == APPLICATION_ID:
+            return True
+        # holotype 0.1 wrote no application id: a database holding exactly its table is still ours
+        return app_id == 0 and self._has_only_our_table()
+
+    def _has_only_our_table(self) -> bool:
+        try:
+            conn = sqlite3.connect(f"file:{self.path}?mode=ro", uri=True, timeout=5)
+            try:
+                names = {r[0] for r in conn.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+            finally:
+                conn.close()
+        except sqlite3.DatabaseError:
+            return False
+        return names == {"digests"}
+
     def _open(self) -> None:
+        ours = self._ours()
+        if ours is False:
+            raise HolotypeError("is not holotype's digest cache (a file of another program, or one holotype cannot "
+                                "prove it wrote); holotype never replaces it. Point HOLOTYPE_CACHE_DIR at a folder "
+                                "of holotype's own, or move the file", self.path)
         try:
             self.conn = self._connect()
             return
         except (sqlite3.DatabaseError, OSError):
             pass
-        for suffix in ("", "-wal", "-shm"):  # corrupt: start again
+        for suffix in ("", "-wal", "-shm"):  # ours but corrupt: start again
             try:
                 Path(str(self.path) + suffix).unlink()
             except OSError:

@@ -5,10 +5,13 @@ from __future__ import annotations
 import json
 import os
 import shutil
+import signal
 import subprocess
+import threading
+import time
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import IO, Any
 
 from holotype.capture.origins import origin_from_direct_url
 from holotype.errors import HolotypeError
@@ -58,36 +61,87 @@ def resolve_python(configured: str | None, root: Path, override: str | None = No
     return str(path), how
 
 
+MAX_PROBE_BYTES = 256 << 20  # the most of the probe's answer kept; an interpreter printing more is refused
+MAX_PROBE_ERROR = 64 << 10  # the last bytes of its stderr kept for the message
+
+
+class _Drain(threading.Thread):
+    """Read a pipe to its end in the background, keeping the first `keep` bytes (or the last, with `tail`)."""
+
+    def __init__(self, stream: IO[bytes], keep: int, *, tail: bool = False) -> None:
+        super().__init__(daemon=True)
+        self.stream, self.keep, self.tail = stream, keep, tail
+        self.data = bytearray()
+        self.overflow = False
+
+    def run(self) -> None:
+        try:
+            while chunk := self.stream.read(1 << 16):
+                self.data += chunk
+                if len(self.data) > self.keep:
+                    self.overflow = True
+                    self.data = self.data[-self.keep:] if self.tail else self.data[: self.keep]
+        except (OSError, ValueError):
+            pass
+
+
 class ProbeRun:
-    """The probe running in the target interpreter; start it early, collect the answer when needed."""
+    """The probe running in the target interpreter; start it early, collect the answer when needed.
+
+    It runs isolated (`-I`: no PYTHON* variables, no user site, neither the current folder nor the script's
+    on sys.path) from a neutral folder, so no module of the project can be imported by it: check runs nothing
+    of the project. It gets its own process group, killed whole on a timeout."""
 
     def __init__(self, python: str, cwd: Path, how: str = "") -> None:
         self.python = python
         self.how = how
-        env = {k: v for k, v in os.environ.items() if k not in ("PYTHONPATH", "PYTHONHOME", "PYTHONSTARTUP")}
-        env["PYTHONIOENCODING"] = "utf-8"
+        env = {k: v for k, v in os.environ.items() if not k.startswith("PYTHON")}
         try:
-            self.proc = subprocess.Popen([python, "-c", probe_source()], cwd=cwd, env=env, stdin=subprocess.DEVNULL,
-                                         stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+            self.proc = subprocess.Popen([python, "-I", "-c", probe_source()], cwd=os.path.abspath(os.sep), env=env,
+                                         stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                         start_new_session=True)
         except OSError as exc:
             where = f" (from {how})" if how else ""
             raise HolotypeError(f"cannot run target interpreter {python}{where}: {exc.strerror}; "
                                 "set python = \"...\" in holotype.toml or pass --python PATH") from None
+        assert self.proc.stdout is not None and self.proc.stderr is not None
+        self.out = _Drain(self.proc.stdout, MAX_PROBE_BYTES)
+        self.err = _Drain(self.proc.stderr, MAX_PROBE_ERROR, tail=True)
+        self.out.start()
+        self.err.start()
+
+    def stop(self) -> None:
+        """Kill the probe's whole group (a child it started may hold its pipes open)."""
+        try:
+            os.killpg(self.proc.pid, signal.SIGKILL)
+        except (OSError, AttributeError):
+            self.proc.kill()
+        self.proc.wait()
 
     def result(self) -> dict[str, Any]:
         """Wait for the probe and return its parsed JSON."""
-        try:
-            out, err = self.proc.communicate(timeout=PROBE_TIMEOUT)
-        except subprocess.TimeoutExpired:
-            self.proc.kill()
-            self.proc.communicate()
-            raise HolotypeError(f"target interpreter {self.python} did not answer within {PROBE_TIMEOUT}s") from None
+        deadline = time.monotonic() + PROBE_TIMEOUT
+        while self.proc.poll() is None and not self.out.overflow and time.monotonic() < deadline:
+            time.sleep(0.005)
+        if self.proc.poll() is None:
+            self.stop()
+            if self.out.overflow:
+                raise HolotypeError(f"target interpreter {self.python} printed more than {MAX_PROBE_BYTES:,} bytes "
+                                    "instead of describing itself")
+            raise HolotypeError(f"target interpreter {self.python} did not answer within {PROBE_TIMEOUT}s")
+        self.out.join(timeout=2)
+        self.err.join(timeout=2)
+        if self.out.is_alive() or self.err.is_alive():  # a child of it still holds the pipes
+            self.stop()
+        if self.out.overflow:
+            raise HolotypeError(f"target interpreter {self.python} printed more than {MAX_PROBE_BYTES:,} bytes "
+                                "instead of describing itself")
         if self.proc.returncode != 0:
-            tail = err.decode("utf-8", "replace").strip().splitlines()[-1:] or ["no error text"]
-            raise HolotypeError(f"target interpreter {self.python} failed to describe itself: {tail[0]} "
+            tail = bytes(self.err.data).decode("utf-8", "replace").strip().splitlines()[-1:] or ["no error text"]
+            raise HolotypeError(f"target interpreter {self.python} failed to describe itself: {tail[0][:500]} "
                                 "(holotype needs Python 3.8 or newer there)")
         try:
-            doc = json.loads(out)
+            doc = json.loads(bytes(self.out.data))
         except ValueError:
             raise HolotypeError(f"target interpreter {self.python} printed something that is not the probe's "
                                 "JSON") from None
@@ -101,8 +155,19 @@ def run_probe(python: str, cwd: Path, how: str = "") -> dict[str, Any]:
     return ProbeRun(python, cwd, how).result()
 
 
-def environment_from_probe(doc: dict[str, Any], root: Path | None = None) -> Environment:
-    """Turn the probe's JSON into typed records (names normalised per PEP 503, origins stripped)."""
+def environment_from_probe(doc: dict[str, Any], root: Path | None = None, python: str = "the target") -> Environment:
+    """Turn the probe's JSON into typed records (names normalised per PEP 503, origins stripped).
+
+    An answer of the wrong shape (missing keys, wrong types) is one clear error naming the interpreter."""
+    try:
+        return _environment(doc, root)
+    except (KeyError, TypeError, ValueError, AttributeError) as exc:
+        what = f"missing key {exc}" if isinstance(exc, KeyError) else f"{type(exc).__name__}: {exc}"
+        raise HolotypeError(f"the probe of interpreter {python} gave an answer holotype cannot read ({what}); "
+                            "is it a real Python 3.8+?") from None
+
+
+def _environment(doc: dict[str, Any], root: Path | None) -> Environment:
     from packaging.utils import canonicalize_name
 
     it = doc["interpreter"]
@@ -152,4 +217,4 @@ def environment_from_probe(doc: dict[str, Any], root: Path | None = None) -> Env
 
 def capture_environment(python: str, root: Path, how: str = "") -> Environment:
     """Describe the target interpreter at `python`."""
-    return environment_from_probe(run_probe(python, root, how), root)
+    return environment_from_probe(run_probe(python, root, how), root, python)

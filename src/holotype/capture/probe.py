@@ -88,12 +88,26 @@ def _top_level_names(dist):
     return sorted(names)
 
 
+def _search_path():
+    """sys.path as the analyses see it. holotype runs this probe isolated (-I), which drops the user's
+    site-packages; an analysis run normally has it (outside a virtual environment), so add it back."""
+    path = list(sys.path)
+    if sys.flags.isolated and sys.prefix == getattr(sys, "base_prefix", sys.prefix) \
+            and not os.environ.get("PYTHONNOUSERSITE"):
+        import site
+
+        user = site.getusersitepackages()
+        if isinstance(user, str) and os.path.isdir(user) and user not in path:
+            path.append(user)
+    return path
+
+
 def _distributions():
     from importlib import metadata
 
     seen = set()
     result = []
-    for dist in metadata.distributions():
+    for dist in metadata.distributions(path=_search_path()):
         try:
             text = dist.read_text("METADATA") or dist.read_text("PKG-INFO") or ""
         except Exception:

@@ -51,10 +51,9 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
         finally:
             if cache is not None:
                 cache.close()
-        env = environment_from_probe(probe.result(), config.root)
+        env = environment_from_probe(probe.result(), config.root, python)
     finally:
         if probe.proc.poll() is None:
-            probe.proc.kill()
-            probe.proc.communicate()
+            probe.stop()
     env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
     return ProjectCapture(env, python, data, code, scan.problems, unmatched)

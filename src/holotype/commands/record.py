@@ -9,7 +9,7 @@ from holotype import __version__
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.project import capture_project
 from holotype.clock import timestamp
-from holotype.compare.runs import failure_finding, foreign_write_findings
+from holotype.compare.runs import failure_finding, process_findings
 from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
@@ -70,7 +70,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             finally:
                 runner.close()
             for result in results:
-                findings += foreign_write_findings(result)
+                findings += process_findings(result)
                 if not result.ok:
                     findings.append(failure_finding(result, root))
                     continue

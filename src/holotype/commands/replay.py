@@ -12,7 +12,7 @@ from holotype.compare.runs import (
     compare_two_runs,
     compare_with_baselines,
     failure_finding,
-    foreign_write_findings,
+    process_findings,
     ran_finding,
 )
 from holotype.config import load_config
@@ -71,7 +71,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     finally:
         runner.close()
     for result in results:
-        findings += foreign_write_findings(result)
+        findings += process_findings(result)
         record = lock.analyses.get(result.name)
         if not result.ok:
             findings.append(failure_finding(result, root))

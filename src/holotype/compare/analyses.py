@@ -61,7 +61,7 @@ def check_baselines(store: BaselineStore, lock: LockContents, *, verify: bool) -
         for out, o in sorted(rec.outputs.items()):
             if verify:
                 try:
-                    store.get(o.sha256)
+                    store.get(o.sha256, o.size)
                 except BaselineError as exc:
                     findings.append(Finding("output", out, "output.baseline", exc.detail, o.sha256, None))
             elif not store.has(o.sha256):

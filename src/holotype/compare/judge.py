@@ -12,7 +12,7 @@ from holotype.compare.cells import MISSING, NUMBER, TEXT, column_arrays
 from holotype.compare.numbers import judge
 from holotype.compare.outcome import Outcome
 from holotype.compare.tally import Tally
-from holotype.phrasing import listed
+from holotype.phrasing import clip, listed
 from holotype.tolerance import RuleBook, Tolerance
 
 Where = Callable[[int], str]
@@ -77,15 +77,18 @@ class ColumnJudge:
 def plan_columns(output: str, e_cols: list[str], a_cols: list[str], rules: RuleBook, outcome: Outcome) -> list[str]:
     """The columns to compare: shared by name, minus ignored and key columns; shape problems noted."""
     whole = rules.for_output(output)
-    shared = [c for c in e_cols if c in a_cols]
-    only_e = [c for c in e_cols if c not in a_cols]
-    only_a = [c for c in a_cols if c not in e_cols]
+    e_set, a_set = set(e_cols), set(a_cols)  # sets: a table of 100,000 columns stays linear
+    shared = [c for c in e_cols if c in a_set]
+    shared_set = set(shared)
+    only_e = [c for c in e_cols if c not in a_set]
+    only_a = [c for c in a_cols if c not in e_set]
     if only_e:
-        outcome.problem("output.shape", f"column(s) missing: {listed(only_e)}", only_e, None)
+        outcome.problem("output.shape", f"column(s) missing: {listed(clip(c) for c in only_e)}", len(only_e), None)
     if only_a:
-        outcome.problem("output.shape", f"new column(s): {listed(only_a)}", None, only_a)
-    if [c for c in a_cols if c in shared] != shared:
+        outcome.problem("output.shape", f"new column(s): {listed(clip(c) for c in only_a)}", None, len(only_a))
+    if [c for c in a_cols if c in shared_set] != shared:
         outcome.notes.append("columns are in a different order (matched by name)")
-    if len(set(e_cols)) != len(e_cols) or len(set(a_cols)) != len(a_cols):
+    if len(e_set) != len(e_cols) or len(a_set) != len(a_cols):
         outcome.problem("output.shape", "duplicate column names; only the first of each is compared")
-    return [c for c in shared if not any(fnmatchcase(c, g) for g in whole.ignore) and c not in whole.key]
+    keys = set(whole.key)
+    return [c for c in shared if c not in keys and not any(fnmatchcase(c, g) for g in whole.ignore)]

@@ -35,6 +35,16 @@ def foreign_write_findings(result: RunResult) -> list[Finding]:
             for out, owner in result.wrote_others]
 
 
+def process_findings(result: RunResult) -> list[Finding]:
+    """What a run did besides its outputs: files of other analyses changed, children left behind."""
+    findings = foreign_write_findings(result)
+    if result.left_children:
+        findings.append(Finding("analysis", result.name, "analysis.left_children",
+                                "processes it started were still running after it exited; holotype stopped them "
+                                "(a daemon or a forgotten worker: what they would still have written is missing)"))
+    return findings
+
+
 def ran_finding(result: RunResult) -> Finding:
     return Finding("analysis", result.name, "analysis.ran", f"ran in {result.seconds:.1f}s with seed {result.seed}")
 
@@ -49,7 +59,7 @@ def compare_with_baselines(record: AnalysisRecord, result: RunResult, store: Bas
             findings.append(Finding("output", out, "output.missing", "not written by this run", rec.sha256, None))
             continue
         try:
-            baseline = store.get(rec.sha256)
+            baseline = store.get(rec.sha256, rec.size)
         except BaselineError as exc:
             findings.append(Finding("output", out, "output.baseline", exc.detail, rec.sha256, None))
             continue

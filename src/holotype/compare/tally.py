@@ -10,6 +10,7 @@ import numpy as np
 
 from holotype.compare.numbers import MAX_LRE, Verdict, log_relative_error
 from holotype.findings import json_number
+from holotype.phrasing import clip
 from holotype.tolerance import Tolerance
 
 EXAMPLES_KEPT = 5
@@ -89,8 +90,9 @@ class Tally:
                 self.examples.append(f"{where(j)}: {expected[j]!r} recorded, {actual[j]!r} found")
 
     def add_exact(self, equal: bool, where: str, expected: Any, actual: Any) -> None:
-        """One non-numeric cell (text, missing, or a kind mismatch) compared exactly."""
+        """One non-numeric cell (text, missing, or a kind mismatch) compared exactly (long values kept clipped)."""
         self.compared += 1
+        expected, actual = clip(expected), clip(actual)
         if equal:
             self.decades["exact"] = self.decades.get("exact", 0) + 1
             return

@@ -199,7 +199,7 @@ def _baseline_of(folder: Path, output: str) -> bytes:
     lock = read_lock(folder / LOCK_NAME)
     for rec in lock.analyses.values():
         if output in rec.outputs:
-            return BaselineStore(folder).get(rec.outputs[output].sha256)
+            return BaselineStore(folder).get(rec.outputs[output].sha256, rec.outputs[output].size)
     raise HolotypeError(f"no baseline for {output}")
 
 

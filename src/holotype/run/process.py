@@ -11,13 +11,20 @@ import threading
 import time
 from collections import deque
 from pathlib import Path
-from typing import IO, TextIO
+from typing import IO, BinaryIO
 
+from holotype.errors import InputError
 from holotype.records import ProducedOutput, RunResult
 from holotype.run.events import RunEvents
 from holotype.run.plan import Step
+from holotype.safe_files import read_regular
 
 TAIL_LINES = 12
+TAIL_LINE_CHARS = 2000  # the most of one output line kept for messages (the log keeps everything)
+CHUNK = 1 << 16
+LOG_HEADER = ("# holotype: {name}: {argv} (HOLOTYPE_SEED={seed})\n"
+              "# This log keeps what the analysis printed, unredacted; it stays out of version control "
+              "(.holotype/.gitignore). holotype's reports redact secrets.\n")
 GRACE_SECONDS = 3.0  # between TERM and KILL when holotype stops a group
 
 
@@ -62,15 +69,49 @@ def _stamp(path: Path) -> tuple[int, int, int, int] | None:
     return (st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
 
 
-def _pump(stream: IO[bytes], log: TextIO, tail: deque[str], name: str, events: RunEvents | None) -> None:
-    """Copy the analysis' output to its log, the tail and the progress display, line by line."""
-    for raw in iter(stream.readline, b""):
-        line = raw.decode("utf-8", "replace").rstrip("\r\n")
-        log.write(line + "\n")
-        tail.append(line)
-        if events is not None:
-            events.output(name, line)
+def _pump(stream: IO[bytes], log: BinaryIO, tail: deque[str], name: str, events: RunEvents | None) -> None:
+    """Copy the analysis' output to its log as it comes, byte for byte, in bounded chunks (a line of
+    gigabytes without a newline streams to the log too); keep the last lines, each at most TAIL_LINE_CHARS."""
+    partial = b""
+    while True:
+        try:
+            chunk = stream.read1(CHUNK)  # type: ignore[attr-defined]
+        except (OSError, ValueError):
+            break
+        if not chunk:
+            break
+        try:
+            log.write(chunk)
+            log.flush()
+        except (OSError, ValueError):  # disk full: the run goes on; the log says less
+            pass
+        *lines, partial = (partial + chunk).split(b"\n")
+        if len(partial) > TAIL_LINE_CHARS:
+            partial = partial[:TAIL_LINE_CHARS]
+        for raw in lines:
+            line = raw[:TAIL_LINE_CHARS].decode("utf-8", "replace").rstrip("\r")
+            tail.append(line)
+            if events is not None:
+                events.output(name, line)
+    if partial:
+        tail.append(partial.decode("utf-8", "replace"))
     stream.close()
+
+
+def _open_log(path: Path) -> BinaryIO:
+    """The analysis' log, created fresh; never written through a symbolic link."""
+    flags = os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0)
+    return os.fdopen(os.open(path, flags, 0o644), "wb")
+
+
+def _group_alive(pgid: int) -> bool:
+    try:
+        os.killpg(pgid, 0)
+    except (ProcessLookupError, PermissionError, AttributeError):
+        return False
+    except OSError:
+        return False
+    return True
 
 
 def _signal_group(proc: subprocess.Popen[bytes], sig: int) -> None:
@@ -85,6 +126,11 @@ def _signal_group(proc: subprocess.Popen[bytes], sig: int) -> None:
             proc.terminate()
 
 
+def _inside(root: Path, path: Path) -> bool:
+    real_root = os.path.realpath(root)
+    return os.path.commonpath([real_root, os.path.realpath(path)]) == real_root
+
+
 def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | None], result: RunResult) -> None:
     """Digest each declared output the run wrote (absent or untouched since before the run: not written)."""
     for out in step.outputs:
@@ -93,10 +139,13 @@ def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | No
         if stamp is None or stamp == before[out]:
             result.missing.append(out)
             continue
+        if not _inside(step.cwd, path):
+            result.refused[out] = "leads outside the project through a symbolic link; refused"
+            continue
         try:
-            data = path.read_bytes()
-        except OSError:
-            result.missing.append(out)
+            data = read_regular(path, what="the output")
+        except InputError as exc:
+            result.refused[out] = exc.detail
             continue
         result.outputs[out] = ProducedOutput(out, hashlib.sha256(data).hexdigest(), len(data), data)
 
@@ -111,8 +160,8 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
     tail: deque[str] = deque(maxlen=TAIL_LINES)
     start = time.monotonic()
     try:
-        with open(log_path, "w", encoding="utf-8", errors="replace") as log:
-            log.write(f"# holotype: {step.name}: {shlex.join(step.argv)} (HOLOTYPE_SEED={step.seed})\n")
+        with _open_log(log_path) as log:
+            log.write(LOG_HEADER.format(name=step.name, argv=shlex.join(step.argv), seed=step.seed).encode())
             log.flush()
             proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=step.env, stdin=subprocess.DEVNULL,
                                     stdout=subprocess.PIPE, stderr=subprocess.STDOUT, start_new_session=True)
@@ -130,8 +179,16 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
                 except BaseException:  # Ctrl-C or SIGTERM while waiting: the analysis must not outlive holotype
                     LIVE.stop_all()
                     raise
-                reader.join(timeout=5)
                 result.returncode = proc.wait()
+                if _group_alive(proc.pid):
+                    # children that outlived the analysis (a daemon, a forgotten worker): stop them all
+                    result.left_children = True
+                    _signal_group(proc, signal.SIGTERM)
+                    deadline = time.monotonic() + GRACE_SECONDS
+                    while _group_alive(proc.pid) and time.monotonic() < deadline:
+                        time.sleep(0.02)
+                    _signal_group(proc, signal.SIGKILL)
+                reader.join(timeout=GRACE_SECONDS)
             finally:
                 LIVE.discard(proc)
     except FileNotFoundError:

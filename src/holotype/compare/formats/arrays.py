@@ -9,7 +9,7 @@ from __future__ import annotations
 import tokenize
 import zipfile
 from fnmatch import fnmatchcase
-from typing import Any
+from typing import Any, BinaryIO
 
 import numpy as np
 
@@ -25,9 +25,53 @@ LOAD_ERRORS = (ValueError, SyntaxError, tokenize.TokenError, EOFError, OSError, 
                TypeError, MemoryError)
 
 
+MAX_ARRAY_BYTES = 1 << 30  # the largest array a .npy or an .npz member may declare (1 GiB)
+MAX_ARCHIVE_BYTES = 2 << 30  # all arrays of one .npz together
+
+
+def declared_bytes(fh: BinaryIO) -> int:
+    """The size an .npy header declares (shape x item size), read without loading the data."""
+    version = np.lib.format.read_magic(fh)
+    if version == (1, 0):
+        shape, _, dtype = np.lib.format.read_array_header_1_0(fh)
+    else:
+        shape, _, dtype = np.lib.format.read_array_header_2_0(fh)
+    count = 1
+    for n in shape:
+        count *= int(n)
+    return count * int(dtype.itemsize)
+
+
+def _refuse_large(src: Source) -> None:
+    """Check what each array declares before NumPy allocates it (an .npz of a few MB can declare GBs)."""
+    with src.open() as fh:
+        magic = fh.read(6)
+        fh.seek(0)
+        if magic.startswith(b"PK"):
+            total = 0
+            with zipfile.ZipFile(fh) as archive:
+                for info in archive.infolist():
+                    if not info.filename.endswith(".npy"):
+                        continue
+                    with archive.open(info) as member:
+                        size = declared_bytes(member)  # type: ignore[arg-type]
+                    total += size
+                    if size > MAX_ARRAY_BYTES or total > MAX_ARCHIVE_BYTES:
+                        raise UnreadableOutput(f"array '{info.filename[:-4]}' declares {size:,} bytes (the archive "
+                                               f"{total:,} so far), more than holotype compares "
+                                               f"({MAX_ARRAY_BYTES:,} per array, {MAX_ARCHIVE_BYTES:,} in all)",
+                                               src.label)
+        else:
+            size = declared_bytes(fh)
+            if size > MAX_ARRAY_BYTES:
+                raise UnreadableOutput(f"the array declares {size:,} bytes, more than holotype compares "
+                                       f"({MAX_ARRAY_BYTES:,})", src.label)
+
+
 def load_arrays(src: Source) -> dict[str, np.ndarray]:
     """{name: array}; a .npy file holds one array named 'array'. allow_pickle is always False."""
     try:
+        _refuse_large(src)
         loaded = np.load(src.open(), allow_pickle=False)
         if isinstance(loaded, np.ndarray):
             return {"array": loaded}
