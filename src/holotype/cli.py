@@ -119,9 +119,9 @@ class Session:
                 raise HolotypeError("standard output is closed; pass --output FILE")
             sys.stdout.write(text)
             return
-        from holotype.atomic import write_atomic
+        from holotype.safe_files import write_output
 
-        write_atomic(self.output, text)
+        write_output(self.output, text)
         self.say(f"wrote {self.output}")
 
     def emit(self, report: Judgement) -> int:
@@ -133,9 +133,9 @@ class Session:
             self.say(f"warning: {warning}")
         if self.output is not None:
             fmt = self.fmt if self.fmt != "text" else format_for(self.output, FINDINGS, "text")
-            from holotype.atomic import write_atomic
+            from holotype.safe_files import write_output
 
-            write_atomic(self.output, render_findings(report, fmt))
+            write_output(self.output, render_findings(report, fmt))
             if not self.quiet:
                 print_report(self.console, report)
         elif self.fmt == "text":
@@ -149,6 +149,10 @@ class Session:
                 raise HolotypeError("standard output is closed; pass --output FILE")
             sys.stdout.write(text)
             sys.stdout.flush()
+        if report.unwritten:  # the verdict above stands, but a file it needed could not be written
+            from holotype.errors import WriteError
+
+            raise WriteError(report.unwritten)
         return 0 if report.ok else 1
 
 
@@ -326,7 +330,8 @@ def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool,
     panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
     try:
         return replay_project(session.project, list(names), twice=twice, python=python, dry_run=dry_run,
-                              progress=panel, jobs=jobs, cluster=cluster)
+                              progress=panel, jobs=jobs, cluster=cluster,
+                              announce=lambda line: session.say(f"warning: {line}"))
     finally:
         if panel is not None:
             panel.close()

@@ -13,6 +13,7 @@ from typing import IO, Any
 import click
 
 from holotype.phrasing import one_line
+from holotype.redaction import redact
 
 
 class HolotypeError(click.ClickException):
@@ -22,7 +23,7 @@ class HolotypeError(click.ClickException):
 
     def __init__(self, message: str, path: Path | str | None = None) -> None:
         self.path = one_line(str(path)) if path is not None else None
-        self.detail = one_line(message)
+        self.detail = one_line(redact(message))
         super().__init__(f"{self.path}: {self.detail}" if self.path else self.detail)
 
     def __str__(self) -> str:

@@ -181,6 +181,7 @@ class RunResult:
     wrote_others: list[tuple[str, str]] = field(default_factory=list)  # (output, the analysis that declares it)
     left_children: bool = False  # processes of its group were still running after it exited (then stopped)
     refused: dict[str, str] = field(default_factory=dict)  # outputs that are links, pipes or devices: why
+    log_problem: str | None = None  # the log could not be written (the run went on)
 
     @property
     def ok(self) -> bool:

@@ -144,3 +144,9 @@ def write_output(path: Path | str, data: bytes | str) -> None:
     if mode and not stat.S_ISREG(mode):
         raise InputError(f"is {_kind(mode)}; refused", path)
     write_atomic(Path(path), payload)
+
+
+def inside(root: Path | str, path: Path | str) -> bool:
+    """Whether `path`, with every link resolved, lies inside `root`."""
+    real_root = os.path.realpath(root)
+    return os.path.commonpath([real_root, os.path.realpath(path)]) == real_root

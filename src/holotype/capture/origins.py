@@ -27,23 +27,37 @@ def strip_credentials(url: str) -> str:
         userinfo, host = netloc.rsplit("@", 1)
         if userinfo not in _SAFE_USERS and not _ENV_REFERENCE.match(userinfo):
             netloc = host
-    query = parts.query
-    if query:
-        pairs = urllib.parse.parse_qsl(query, keep_blank_values=True)
-        kept = [(k, "REDACTED" if _SECRET_QUERY.search(k) else v) for k, v in pairs]
-        query = urllib.parse.urlencode(kept, safe="${}")
-    return urllib.parse.urlunsplit((parts.scheme, netloc, parts.path, query, parts.fragment))
+    return urllib.parse.urlunsplit((parts.scheme, netloc, parts.path, _redact_pairs(parts.query),
+                                    _redact_fragment(parts.fragment)))
+
+
+def _redact_pairs(text: str) -> str:
+    """key=value pairs with the values of secret-looking keys replaced."""
+    if not text or "=" not in text:
+        return text
+    pairs = urllib.parse.parse_qsl(text, keep_blank_values=True)
+    kept = [(k, "REDACTED" if _SECRET_QUERY.search(k) else v) for k, v in pairs]
+    return urllib.parse.urlencode(kept, safe="${}/")
+
+
+def _redact_fragment(fragment: str) -> str:
+    """A fragment may carry `sha256=…` and `subdirectory=…` (kept) or `access_token=…` (redacted)."""
+    if not fragment or "=" not in fragment:
+        return fragment
+    return "&".join(_redact_pairs(part) for part in fragment.split("&"))
 
 
 def hide_home(url: str) -> str:
-    """A file:// URL under the recording user's home folder, written with ~ so the lock names no user."""
+    """A URL or path under the recording user's home folder, written with ~ so the lock names no user."""
     import os
 
     home = os.path.expanduser("~").rstrip("/")
-    prefix = "file://" + home + "/"
-    if home and home != "/" and url.startswith(prefix):
-        return "file://~/" + url[len(prefix):]
-    return url
+    if not home or home == "/":
+        return url
+    for prefix, short in (("file://" + home + "/", "file://~/"), (home + "/", "~/")):
+        if url.startswith(prefix):
+            return short + url[len(prefix):]
+    return url.replace(home + "/", "~/")
 
 
 def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
@@ -57,7 +71,8 @@ def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
     try:
         parsed = DirectUrl.from_dict(doc)
     except (DirectUrlValidationError, TypeError, ValueError):
-        return Origin("unknown", url=strip_credentials(doc["url"]))
+        # not a valid record: still never write a credential or the recording user's home folder
+        return Origin("unknown", url=hide_home(strip_credentials(doc["url"])))
     url = hide_home(strip_credentials(parsed.url))
     if parsed.vcs_info is not None:
         return Origin(

@@ -9,7 +9,7 @@ from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path, PurePosixPath
 
-from holotype.errors import ConfigError
+from holotype.errors import ConfigError, InputError
 
 # Never fingerprinted: version control, virtual environments, caches, holotype's own store.
 SKIP_FOLDERS = frozenset({
@@ -83,6 +83,16 @@ def is_excluded(rel: str, excludes: tuple[str, ...]) -> bool:
     return False
 
 
+def _utf8_name(rel: str) -> None:
+    """File names are recorded as UTF-8 text; a name the OS gave as other bytes cannot be, so say which."""
+    try:
+        rel.encode("utf-8")
+    except UnicodeEncodeError:
+        shown = rel.encode("utf-8", "surrogateescape").decode("utf-8", "backslashreplace")
+        raise InputError("file name is not valid UTF-8, so holotype cannot record it; rename it, or add it to "
+                         "'exclude'", shown) from None
+
+
 class ProjectWalker:
     """Walks the project tree with os.scandir; one pass, no per-file subprocess, links not followed."""
 
@@ -121,6 +131,8 @@ class ProjectWalker:
                 rel = prefix + entry.name
                 if self.excludes and is_excluded(rel, self.excludes):
                     continue
+                if not entry.name.isascii():
+                    _utf8_name(rel)
                 try:
                     if entry.is_symlink():
                         self._check_link(full, rel)

@@ -12,6 +12,7 @@ from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
 from holotype.records import AnalysisRecord, Change, HistoryEntry, OutputRecord
+from holotype.safe_files import inside, read_regular
 from holotype.seeds import derive_seed
 from holotype.store import ProjectStore
 
@@ -35,10 +36,13 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
             outputs = {}
             old = lock.analyses.get(analysis.name)
             for out in analysis.outputs:
+                if not inside(root, root / out):
+                    raise InputError(f"output of '{analysis.name}' leads outside the project through a symbolic "
+                                     "link; holotype never stores such a file", root / out)
                 try:
-                    data = (root / out).read_bytes()
-                except OSError as exc:
-                    raise InputError(f"cannot take output of '{analysis.name}': {exc.strerror}", root / out) from None
+                    data = read_regular(root / out, what="the output")
+                except InputError as exc:
+                    raise InputError(f"cannot take output of '{analysis.name}': {exc.detail}", root / out) from None
                 digest = hashlib.sha256(data).hexdigest()
                 store.baselines.put(data)
                 previous = old.outputs[out].sha256 if old is not None and out in old.outputs else ""

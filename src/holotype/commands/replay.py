@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import shlex
+from collections.abc import Callable
+from dataclasses import replace
 from pathlib import Path
 
 from holotype.capture.environment import resolve_python
@@ -15,11 +17,12 @@ from holotype.compare.runs import (
     process_findings,
     ran_finding,
 )
-from holotype.config import load_config
+from holotype.config import Config, load_config
+from holotype.errors import WriteError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
-from holotype.records import RunResult
+from holotype.records import LockContents, RunResult
 from holotype.run.events import RunEvents
 from holotype.run.plan import Plan, make_plan
 from holotype.run.runner import Runner, make_runner
@@ -42,8 +45,12 @@ def plan_findings(plan: Plan, root: Path, how: str) -> list[Finding]:
 
 def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = False, python: str | None = None,
                    dry_run: bool = False, progress: RunEvents | None = None, runner: Runner | None = None,
-                   jobs: int | None = None, cluster: str | None = None) -> Judgement:
-    """Run analyses again and judge every output against its baseline."""
+                   jobs: int | None = None, cluster: str | None = None,
+                   announce: Callable[[str], None] | None = None) -> Judgement:
+    """Run analyses again and judge every output against its baseline.
+
+    Changed commands are announced (`announce`) before anything runs. The run holds the project's
+    writer lock, so `adopt` or `record` cannot take outputs that are still being written."""
     root = Path(root)
     config = load_config(root)
     lock = read_lock(root / LOCK_NAME)
@@ -56,10 +63,23 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     findings = compare_project_seed(config, lock, ran_with=project_seed)
     findings += [f for f in compare_analyses(config, lock, selected) if f.kind != "analysis.missing"]
     warnings = config.warnings + lock.notices
+    if announce is not None:
+        for f in findings:
+            if f.kind == "analysis.changed" and f.subject in selected and "command changed" in f.message:
+                announce(f"analysis '{f.subject}': {f.message}; replay runs the command in the config")
     if dry_run:
         return Judgement("replay", apply_policy(findings + plan_findings(plan, root, how), config.policy),
                       notes=("dry run: nothing was run",), warnings=warnings, verdict=False)
     store = ProjectStore(root)
+    with store.one_writer():
+        return _run_and_judge(root, config, lock, plan, store, selected, findings, warnings, twice=twice,
+                              progress=progress, runner=runner, jobs=jobs, cluster=cluster)
+
+
+def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, store: ProjectStore,
+                   selected: list[str], findings: list[Finding], warnings: tuple[str, ...], *, twice: bool,
+                   progress: RunEvents | None, runner: Runner | None, jobs: int | None,
+                   cluster: str | None) -> Judgement:
     store.prepare()
     runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
                                    digest_file=LOCK_NAME)
@@ -91,7 +111,10 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
                          if not (f.subject in unstable and f.kind == "output.mismatch")]
         findings += unstable.values()
     report = Judgement("replay", apply_policy(findings, config.policy), warnings=warnings)
-    store.save_last_replay({"when": timestamp(), "analyses": selected,
-                            "outputs": {out: p.sha256 for r in results if r.ok for out, p in r.outputs.items()},
-                            **report.to_dict()})
+    try:
+        store.save_last_replay({"when": timestamp(), "analyses": selected,
+                                "outputs": {out: p.sha256 for r in results if r.ok for out, p in r.outputs.items()},
+                                **report.to_dict()})
+    except WriteError as exc:  # the verdict stands; the caller says what could not be written
+        return replace(report, unwritten=str(exc))
     return report

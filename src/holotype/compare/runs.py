@@ -21,10 +21,11 @@ NONDETERMINISM_CAUSES = ("an unseeded random generator (use holotype.seeds.rng()
 def failure_finding(result: RunResult, root: Path) -> Finding:
     """An analysis that crashed, timed out or wrote no output: the error text and where its log is."""
     try:
-        log = result.log.relative_to(root)
+        log = str(result.log.relative_to(root))
     except ValueError:
-        log = result.log
-    return Finding("analysis", result.name, "analysis.failed", f"{result.failure_text()} (log: {log})")
+        log = str(result.log)
+    where = f"log: {log}" if result.log_problem is None else f"no log: {result.log_problem}"
+    return Finding("analysis", result.name, "analysis.failed", f"{result.failure_text()} ({where})")
 
 
 def foreign_write_findings(result: RunResult) -> list[Finding]:

@@ -5,6 +5,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any
 
+from holotype.phrasing import clip, visible
+from holotype.redaction import redact, secret_values
+
+MAX_LISTED = 50  # list values (columns, paths) kept in a finding beyond which only the count is said
 AREAS = ("interpreter", "platform", "package", "data", "code", "seed", "analysis", "output", "lockfile")
 
 
@@ -76,6 +80,28 @@ def json_number(x: float) -> float | str:
     return x
 
 
+def _clean_text(text: str, secrets: dict[str, str]) -> str:
+    return visible(redact(text, secrets))
+
+
+def _clean_value(value: Any, secrets: dict[str, str]) -> Any:
+    if isinstance(value, str):
+        return visible(redact(str(clip(value)), secrets))
+    if isinstance(value, (list, tuple)):
+        return [_clean_value(v, secrets) for v in value[:MAX_LISTED]] + (
+            [f"… and {len(value) - MAX_LISTED:,} more"] if len(value) > MAX_LISTED else [])
+    return value
+
+
+def _clean_finding(f: Finding, secrets: dict[str, str]) -> Finding:
+    stats = f.stats
+    if stats is not None and (stats.worst or stats.columns):
+        columns = tuple({k: _clean_value(v, secrets) for k, v in c.items()} for c in stats.columns)
+        stats = replace(stats, worst=_clean_value(stats.worst, secrets), columns=columns)
+    return replace(f, subject=_clean_text(f.subject, secrets), message=_clean_text(str(clip(f.message, 4000)), secrets),
+                   expected=_clean_value(f.expected, secrets), actual=_clean_value(f.actual, secrets), stats=stats)
+
+
 @dataclass(frozen=True)
 class Judgement:
     """What a command hands to a renderer."""
@@ -85,6 +111,15 @@ class Judgement:
     notes: tuple[str, ...] = ()
     warnings: tuple[str, ...] = ()  # about the config itself (unknown keys, precedence): printed on stderr
     verdict: bool = True  # False for a plan (a dry run): it says what would happen, not whether it reproduced
+    unwritten: str | None = None  # a file the command had to write and could not (the verdict still stands)
+
+    def __post_init__(self) -> None:
+        # the one funnel every command's findings pass: what reaches a terminal, a report or a file has its
+        # control characters escaped (terminal escapes, C1, bidi), secrets redacted and long values clipped
+        secrets = secret_values()
+        object.__setattr__(self, "findings", tuple(_clean_finding(f, secrets) for f in self.findings))
+        object.__setattr__(self, "notes", tuple(_clean_text(n, secrets) for n in self.notes))
+        object.__setattr__(self, "warnings", tuple(_clean_text(w, secrets) for w in self.warnings))
 
     @property
     def ok(self) -> bool:

@@ -9,6 +9,7 @@ from rich.text import Text
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import SEVERITY_ORDER
 from holotype.findings.summary import summary_line, verdict_word
+from holotype.phrasing import one_line
 
 SEVERITY_STYLE = {"fail": "bold red", "warn": "yellow", "info": "dim"}
 SEVERITY_LABEL = {"fail": "FAIL", "warn": "warn", "info": "info"}
@@ -58,7 +59,7 @@ class FindingsTable:
     def line(f: Finding) -> Text:
         """One finding on one line (outside a terminal: nothing folded, so logs keep paths whole)."""
         text = Text.assemble((f"{SEVERITY_LABEL[f.severity]:<4}", SEVERITY_STYLE[f.severity]),
-                             f"  {f.area:<11} {f.subject}: {f.message}")
+                             f"  {f.area:<11} {one_line(f.subject)}: {one_line(f.message)}")
         if f.stats is not None and f.stats.error_decades and f.severity != "info":
             text.append("\n" + " " * 6 + decade_line(f), style="dim")
         return text

@@ -17,7 +17,7 @@ from holotype.errors import InputError
 from holotype.records import ProducedOutput, RunResult
 from holotype.run.events import RunEvents
 from holotype.run.plan import Step
-from holotype.safe_files import read_regular
+from holotype.safe_files import inside, read_regular
 
 TAIL_LINES = 12
 TAIL_LINE_CHARS = 2000  # the most of one output line kept for messages (the log keeps everything)
@@ -98,10 +98,15 @@ def _pump(stream: IO[bytes], log: BinaryIO, tail: deque[str], name: str, events:
     stream.close()
 
 
-def _open_log(path: Path) -> BinaryIO:
-    """The analysis' log, created fresh; never written through a symbolic link."""
+def _open_log(path: Path, result: RunResult) -> BinaryIO:
+    """The analysis' log, created fresh; never written through a symbolic link. If it cannot be written
+    (a read-only folder), the analysis still runs and the result says where its log is not."""
     flags = os.O_WRONLY | os.O_CREAT | os.O_TRUNC | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_CLOEXEC", 0)
-    return os.fdopen(os.open(path, flags, 0o644), "wb")
+    try:
+        return os.fdopen(os.open(path, flags, 0o644), "wb")
+    except OSError as exc:
+        result.log_problem = f"could not write {path}: {exc.strerror}"
+        return open(os.devnull, "wb")
 
 
 def _group_alive(pgid: int) -> bool:
@@ -126,11 +131,6 @@ def _signal_group(proc: subprocess.Popen[bytes], sig: int) -> None:
             proc.terminate()
 
 
-def _inside(root: Path, path: Path) -> bool:
-    real_root = os.path.realpath(root)
-    return os.path.commonpath([real_root, os.path.realpath(path)]) == real_root
-
-
 def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | None], result: RunResult) -> None:
     """Digest each declared output the run wrote (absent or untouched since before the run: not written)."""
     for out in step.outputs:
@@ -139,7 +139,7 @@ def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | No
         if stamp is None or stamp == before[out]:
             result.missing.append(out)
             continue
-        if not _inside(step.cwd, path):
+        if not inside(step.cwd, path):
             result.refused[out] = "leads outside the project through a symbolic link; refused"
             continue
         try:
@@ -160,7 +160,7 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
     tail: deque[str] = deque(maxlen=TAIL_LINES)
     start = time.monotonic()
     try:
-        with _open_log(log_path) as log:
+        with _open_log(log_path, result) as log:
             log.write(LOG_HEADER.format(name=step.name, argv=shlex.join(step.argv), seed=step.seed).encode())
             log.flush()
             proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=step.env, stdin=subprocess.DEVNULL,
