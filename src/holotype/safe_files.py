@@ -104,6 +104,8 @@ def read_input(path: Path | str, *, limit: int = PIPE_LIMIT) -> bytes | None:
         while True:
             chunk = os.read(fd, 1 << 20)
             if not chunk:
+                if not total:
+                    raise InputError("the pipe gave no data (no process writes to it)", path)
                 return b"".join(chunks)
             total += len(chunk)
             if total > limit:

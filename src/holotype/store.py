@@ -141,6 +141,8 @@ def _inflate(fh: BinaryIO, limit: int, path: Path) -> bytes:
                 break
         if not inflater.eof:
             raise BaselineError(f"baseline {path} does not decompress (truncated)")
+        if inflater.unused_data or fh.read(1):  # holotype writes one gzip member; more was planted or damaged
+            raise BaselineError(f"baseline {path} does not decompress to one object (data after its end)")
     except zlib.error as exc:
         raise BaselineError(f"baseline {path} does not decompress ({exc})") from None
     return bytes(out)

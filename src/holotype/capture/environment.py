@@ -65,6 +65,20 @@ MAX_PROBE_BYTES = 256 << 20  # the most of the probe's answer kept; an interpret
 MAX_PROBE_ERROR = 64 << 10  # the last bytes of its stderr kept for the message
 
 
+def probe_timeout() -> float:
+    """Seconds the probe may take: HOLOTYPE_PROBE_TIMEOUT (1 to 3600), else PROBE_TIMEOUT."""
+    text = os.environ.get("HOLOTYPE_PROBE_TIMEOUT")
+    if text is None:
+        return float(PROBE_TIMEOUT)
+    try:
+        value = float(text)
+    except ValueError:
+        value = -1.0
+    if not 1 <= value <= 3600:
+        raise HolotypeError(f"HOLOTYPE_PROBE_TIMEOUT={text[:40]!r} should be seconds from 1 to 3600")
+    return value
+
+
 class _Drain(threading.Thread):
     """Read a pipe to its end in the background, keeping the first `keep` bytes (or the last, with `tail`)."""
 
@@ -120,7 +134,8 @@ class ProbeRun:
 
     def result(self) -> dict[str, Any]:
         """Wait for the probe and return its parsed JSON."""
-        deadline = time.monotonic() + PROBE_TIMEOUT
+        limit = probe_timeout()
+        deadline = time.monotonic() + limit
         while self.proc.poll() is None and not self.out.overflow and time.monotonic() < deadline:
             time.sleep(0.005)
         if self.proc.poll() is None:
@@ -128,7 +143,7 @@ class ProbeRun:
             if self.out.overflow:
                 raise HolotypeError(f"target interpreter {self.python} printed more than {MAX_PROBE_BYTES:,} bytes "
                                     "instead of describing itself")
-            raise HolotypeError(f"target interpreter {self.python} did not answer within {PROBE_TIMEOUT}s")
+            raise HolotypeError(f"target interpreter {self.python} did not answer within {limit:g}s")
         self.out.join(timeout=2)
         self.err.join(timeout=2)
         if self.out.is_alive() or self.err.is_alive():  # a child of it still holds the pipes

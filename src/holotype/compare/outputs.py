@@ -26,6 +26,16 @@ def _value(v: object) -> str:
     return repr(v) if isinstance(v, str) else str(v)
 
 
+MAX_COLUMN_DETAILS = 200  # per-column figures kept in a finding: the columns that moved most
+
+
+def _column_details(tallies: list[Tally]) -> tuple[dict[str, object], ...]:
+    """Figures per column, for at most MAX_COLUMN_DETAILS columns (those outside tolerance first, worst first)."""
+    if len(tallies) > MAX_COLUMN_DETAILS:
+        tallies = sorted(tallies, key=lambda t: (-t.mismatches, -t.max_rel))[:MAX_COLUMN_DETAILS]
+    return tuple(t.detail() for t in tallies)
+
+
 def findings_from_outcome(output: str, outcome: Outcome) -> list[Finding]:
     """One finding for the output's values, plus one per shape problem and layout note."""
     findings: list[Finding] = []
@@ -44,7 +54,7 @@ def findings_from_outcome(output: str, outcome: Outcome) -> list[Finding]:
     stats = OutputStats(
         compared=total.compared, mismatches=total.mismatches, max_abs_err=total.max_abs, max_rel_err=total.max_rel,
         worst=total.worst_where, min_lre=round(total.min_lre, 2), tolerance=tol_text,
-        error_decades=total.sorted_decades(), columns=tuple(t.detail() for t in outcome.tallies),
+        error_decades=total.sorted_decades(), columns=_column_details(outcome.tallies),
     )
     flip_text = f"; sign flipped as a whole in {', '.join(flipped)} (allowed: sign-free)" if flipped else ""
     if total.mismatches:
