@@ -272,11 +272,11 @@ def test_seed_globals_chains_an_existing_sitecustomize(tmp_path: Path) -> None:
     import os
     import subprocess
 
-    from holotype.run.plan import seeding_folder
+    from holotype.run.plan import hook_folder
 
     write(tmp_path / "site" / "sitecustomize.py", "import builtins\nbuiltins.LAB_SITE = 'loaded'\n")
     env = {**os.environ, "HOLOTYPE_SEED": "42",
-           "PYTHONPATH": seeding_folder() + os.pathsep + str(tmp_path / "site")}
+           "PYTHONPATH": hook_folder() + os.pathsep + str(tmp_path / "site")}
     out = subprocess.run([sys.executable, "-c", "import random, sys; print(random.random(), LAB_SITE, "
                           "'numpy' in sys.modules)"], env=env, capture_output=True, text=True)
     assert out.stdout.split() == ["0.6394267984578837", "loaded", "False"], out.stderr

@@ -27,7 +27,7 @@ LAYERS = {
     "holotype.records": 20, "holotype.findings": 20, "holotype.tolerance": 20, "holotype.clock": 20,
     "holotype.atomic": 20, "holotype.safe_files": 25,
     "holotype.errors": 10,
-    "holotype.schema": 0, "holotype.phrasing": 0, "holotype.redaction": 0, "holotype.seeds": 0, "holotype.__version__": 0,
+    "holotype.schema": 0, "holotype.phrasing": 0, "holotype.redaction": 0, "holotype.threads": 0, "holotype.seeds": 0, "holotype.__version__": 0,
 }
 RENDER_MAY_IMPORT = ("holotype.render", "holotype.findings", "holotype.records", "holotype.appendix",
                      "holotype.phrasing", "holotype.errors", "holotype.__version__")
@@ -71,7 +71,7 @@ def imports_of(path: Path, module: str) -> set[str]:
 def graph() -> dict[str, set[str]]:
     out = {}
     for path in SRC.rglob("*.py"):
-        if "demo/scripts" in path.as_posix() or "seeding" in path.as_posix() or path.name == "probe.py":
+        if "demo/scripts" in path.as_posix() or "run/hook" in path.as_posix() or path.name.endswith("probe.py"):
             continue  # these run inside the analysis interpreter, standard library only
         module = module_name(path)
         out[module] = imports_of(path, module)

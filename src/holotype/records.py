@@ -104,6 +104,8 @@ class AnalysisRecord:
     seed: int = entry()
     outputs: dict[str, OutputRecord] = field(default_factory=dict)
     inputs: tuple[str, ...] = ()
+    modules: tuple[str, ...] = ()  # top-level modules the analysis process imported (the run-time hook)
+    libraries: tuple[str, ...] = ()  # NativeLibrary keys of the libraries loaded in that process
 
 
 class Change(NamedTuple):
@@ -121,6 +123,45 @@ class HistoryEntry:
     reason: str
     analyses: tuple[str, ...]
     changes: tuple[Change, ...] = ()
+
+
+@dataclass(frozen=True)
+class NativeLibrary:
+    """A BLAS, LAPACK or OpenMP library loaded in the analysis interpreter (threadpoolctl's view)."""
+
+    user_api: str  # blas, openmp
+    internal_api: str  # openblas, mkl, blis, flexiblas, openmp, …
+    file: str  # the library's file name (never a path: that would name this machine)
+    bundled_by: str | None = None  # the package whose folder ships it (numpy, scipy), when it can tell
+    version: str | None = None
+    threading_layer: str | None = None
+    num_threads: int | None = None
+    architecture: str | None = None  # the CPU kernel it picked at run time (OpenBLAS, BLIS)
+
+    @property
+    def key(self) -> str:
+        """Stable across runs: which library, shipped by whom."""
+        return f"{self.internal_api} ({self.bundled_by or self.file})"
+
+
+@dataclass(frozen=True)
+class NumericStack:
+    """The numeric layer a package list does not show: native libraries, kernels, CPU, variables."""
+
+    imported: tuple[str, ...] = ()  # the packages imported to inspect it
+    libraries: tuple[NativeLibrary, ...] = ()
+    inspection: str = "threadpoolctl"  # or "numpy build information" when threadpoolctl could not run
+    numpy_version: str | None = None
+    numpy_blas: str | None = None  # the BLAS NumPy was built against, e.g. "scipy-openblas 0.3.31"
+    numpy_lapack: str | None = None
+    numpy_cpu_baseline: tuple[str, ...] = ()
+    numpy_cpu_dispatch: tuple[str, ...] = ()
+    numpy_cpu_features: tuple[str, ...] = ()  # the SIMD extensions NumPy detected on this CPU
+    cpu_vendor: str = ""
+    cpu_model: str = ""
+    cpu_flags: tuple[str, ...] = ()  # of those that change floating-point results (FMA, AVX*, NEON, SVE)
+    logical_cpus: int = 0
+    variables: dict[str, str] = field(default_factory=dict)
 
 
 @dataclass(frozen=True)
@@ -148,6 +189,7 @@ class LockContents:
     code: dict[str, FileRecord] = entry(default_factory=dict, order=8)
     analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)
     history: list[HistoryEntry] = entry(default_factory=list, order=10)
+    numerics: NumericStack | None = entry(default=None, order=5.5)
     # said once to the user when this was read from an older format; never written
     notices: tuple[str, ...] = entry(default=(), skip=True)
 
@@ -182,6 +224,8 @@ class RunResult:
     left_children: bool = False  # processes of its group were still running after it exited (then stopped)
     refused: dict[str, str] = field(default_factory=dict)  # outputs that are links, pipes or devices: why
     log_problem: str | None = None  # the log could not be written (the run went on)
+    modules: tuple[str, ...] | None = None  # top-level modules the process imported (None: the hook said nothing)
+    libraries: tuple[dict[str, Any], ...] | None = None  # threadpoolctl's view of its native libraries
 
     @property
     def ok(self) -> bool:

@@ -26,7 +26,7 @@ HEX = frozenset("0123456789abcdef")
 def entry(*, default: Any = _MISSING, default_factory: Any = _MISSING, key: str | None = None,
           from_key: bool = False, digest: bool = False, choices: tuple[str, ...] = (), skip: bool = False,
           omit_default: bool = False, derive: Callable[[dict[str, Any]], Any] | None = None,
-          read_default: Any = _MISSING, order: int = 0) -> Any:
+          read_default: Any = _MISSING, order: float = 0) -> Any:
     """A dataclass field with its lockfile rules."""
     meta = {"key": key, "from_key": from_key, "digest": digest, "choices": choices, "skip": skip,
             "omit_default": omit_default, "derive": derive, "read_default": read_default, "order": order}

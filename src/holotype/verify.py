@@ -9,6 +9,7 @@ from holotype.capture.project import capture_project
 from holotype.compare.analyses import check_baselines, compare_analyses, compare_project_seed
 from holotype.compare.digests import compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
+from holotype.compare.numerics import compare_numerics
 from holotype.config import load_config
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
@@ -27,6 +28,7 @@ def verify_project(root: Path, *, command: str = "check", strict: bool = False, 
     findings += compare_interpreter(lock.interpreter, now.environment.interpreter)
     findings += compare_platform(lock.platform, now.environment.platform)
     findings += compare_packages(lock.packages, now.environment.packages)
+    findings += compare_numerics(lock.numerics, now.numerics)
     findings += compare_file_sets("data", lock.data, now.data.records, now.data.problems)
     findings += compare_file_sets("code", lock.code, now.code.records, now.code.problems)
     findings += compare_project_seed(config, lock)

@@ -20,6 +20,8 @@ _SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
     dev INTEGER NOT NULL, ino INTEGER NOT NULL, size INTEGER NOT NULL,
     mtime_ns INTEGER NOT NULL, ctime_ns INTEGER NOT NULL, sha256 TEXT NOT NULL,
     PRIMARY KEY (dev, ino))"""
+# what an interpreter's numeric inspection answered, keyed by what decides it (capture/numerics.py)
+_FACTS = "CREATE TABLE IF NOT EXISTS facts (key TEXT PRIMARY KEY, doc TEXT NOT NULL, stored REAL NOT NULL)"
 
 Identity = tuple[int, int, int, int, int]
 
@@ -54,6 +56,7 @@ class DigestCache:
         conn = sqlite3.connect(self.path, timeout=30, isolation_level=None, check_same_thread=False)
         conn.execute("PRAGMA journal_mode=WAL")
         conn.execute(_SCHEMA)
+        conn.execute(_FACTS)
         conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
         conn.execute("SELECT count(*) FROM digests WHERE dev = -1").fetchone()
         return conn
@@ -92,7 +95,7 @@ class DigestCache:
                 conn.close()
         except sqlite3.DatabaseError:
             return False
-        return names == {"digests"}
+        return names <= {"digests", "facts"} and "digests" in names
 
     def _open(self) -> None:
         ours = self._ours()
@@ -158,6 +161,25 @@ class DigestCache:
                 self.conn.execute("ROLLBACK")
             except sqlite3.DatabaseError:
                 pass
+
+    def fact(self, key: str) -> str | None:
+        """A remembered answer for `key` (see capture/numerics.py), or None."""
+        if self.conn is None:
+            return None
+        try:
+            row = self.conn.execute("SELECT doc FROM facts WHERE key = ?", (key,)).fetchone()
+        except sqlite3.DatabaseError:
+            return None
+        return None if row is None else str(row[0])
+
+    def remember(self, key: str, doc: str) -> None:
+        if self.conn is None:
+            return
+        try:
+            self.conn.execute("INSERT OR REPLACE INTO facts (key, doc, stored) VALUES (?, ?, ?)",
+                              (key, doc, time.time()))
+        except sqlite3.DatabaseError:
+            pass
 
     def close(self) -> None:
         if self.conn is not None:

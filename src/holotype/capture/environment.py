@@ -106,12 +106,16 @@ class ProbeRun:
     on sys.path) from a neutral folder, so no module of the project can be imported by it: check runs nothing
     of the project. It gets its own process group, killed whole on a timeout."""
 
-    def __init__(self, python: str, cwd: Path, how: str = "") -> None:
+    def __init__(self, python: str, cwd: Path, how: str = "", *, script: str = "probe.py", args: tuple[str, ...] = (),
+                 extra_env: dict[str, str] | None = None, format_key: str = "probe_format") -> None:
         self.python = python
         self.how = how
+        self.format_key = format_key
         env = {k: v for k, v in os.environ.items() if not k.startswith("PYTHON")}
+        env.update(extra_env or {})
+        source = resources.files("holotype.capture").joinpath(script).read_text(encoding="utf-8")
         try:
-            self.proc = subprocess.Popen([python, "-I", "-c", probe_source()], cwd=os.path.abspath(os.sep), env=env,
+            self.proc = subprocess.Popen([python, "-I", "-c", source, *args], cwd=os.path.abspath(os.sep), env=env,
                                          stdin=subprocess.DEVNULL, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
                                          start_new_session=True)
         except OSError as exc:
@@ -160,7 +164,7 @@ class ProbeRun:
         except ValueError:
             raise HolotypeError(f"target interpreter {self.python} printed something that is not the probe's "
                                 "JSON") from None
-        if not isinstance(doc, dict) or doc.get("probe_format") != 1:
+        if not isinstance(doc, dict) or doc.get(self.format_key) != 1:
             raise HolotypeError(f"target interpreter {self.python}: unexpected probe answer")
         return doc
 

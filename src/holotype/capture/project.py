@@ -9,10 +9,11 @@ from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
 from holotype.capture.imports import scan_imports
+from holotype.capture.numerics import finish_inspection, start_inspection
 from holotype.capture.usage import declared_requirements, mark_used, used_closure
 from holotype.capture.walk import ProjectFile, ProjectWalker
 from holotype.config import Config
-from holotype.records import Environment
+from holotype.records import Environment, NumericStack
 
 
 @dataclass
@@ -23,6 +24,7 @@ class ProjectCapture:
     code: FingerprintResult
     code_problems: list[tuple[str, str]] = field(default_factory=list)
     unmatched_data: list[str] = field(default_factory=list)
+    numerics: NumericStack | None = None
 
 
 def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
@@ -37,10 +39,12 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
 
 
 def capture_project(config: Config, *, python_override: str | None = None, full: bool = False,
-                    progress: HashProgress | None = None) -> ProjectCapture:
+                    progress: HashProgress | None = None, numerics: bool = True) -> ProjectCapture:
     """Everything `record` writes and `check` compares, except analysis outputs."""
     python, how = resolve_python(config.python, config.root, python_override)
     probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
+    inspection = start_inspection(python, config.threads) if numerics else None
+    stack = None
     try:
         data_files, code_files, unmatched = tracked_files(config)
         scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
@@ -48,12 +52,15 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
         try:
             data = fingerprint_files(data_files, cache=cache, progress=progress)
             code = fingerprint_files(code_files, cache=cache)
+            env = environment_from_probe(probe.result(), config.root, python)
+            if inspection is not None:
+                stack = finish_inspection(inspection, python, env, config.threads, cache)
         finally:
             if cache is not None:
                 cache.close()
-        env = environment_from_probe(probe.result(), config.root, python)
     finally:
-        if probe.proc.poll() is None:
-            probe.stop()
+        for run in (probe, inspection):
+            if run is not None and run.proc.poll() is None:
+                run.stop()
     env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
-    return ProjectCapture(env, python, data, code, scan.problems, unmatched)
+    return ProjectCapture(env, python, data, code, scan.problems, unmatched, stack)

@@ -7,6 +7,7 @@ from pathlib import Path
 
 from holotype import __version__
 from holotype.capture.fingerprints import HashProgress
+from holotype.capture.numerics import libraries_from_info
 from holotype.capture.project import capture_project
 from holotype.clock import timestamp
 from holotype.compare.runs import failure_finding, process_findings
@@ -80,8 +81,11 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                     outputs[out] = OutputRecord(out, produced.sha256, produced.size,
                                                 config.rulebook.for_output(out).summary())
                 analysis = config.analysis(result.name)
-                analyses[result.name] = AnalysisRecord(result.name, result.command, result.seed, outputs,
-                                                       analysis.inputs)
+                analyses[result.name] = AnalysisRecord(
+                    result.name, result.command, result.seed, outputs, analysis.inputs,
+                    modules=tuple(m for m in result.modules or () if m not in capture.environment.stdlib
+                                  and m != "sitecustomize"),
+                    libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})))
                 findings.append(Finding("analysis", result.name, "lockfile.note",
                                         f"ran in {result.seconds:.1f}s with seed {result.seed}; "
                                         f"{len(outputs)} output(s) captured"))
@@ -90,7 +94,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                 if any(a.name == name for a in config.analyses):
                     a = config.analysis(name)
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
-                                                    a.inputs)
+                                                    a.inputs, rec.modules, rec.libraries)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,
@@ -105,6 +109,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             interpreter=capture.environment.interpreter,
             platform=capture.environment.platform,
             packages=capture.environment.packages,
+            numerics=capture.numerics,
             recorded=timestamp(),
             holotype=__version__,
             project_seed=config.seed,

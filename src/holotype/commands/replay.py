@@ -8,8 +8,10 @@ from dataclasses import replace
 from pathlib import Path
 
 from holotype.capture.environment import resolve_python
+from holotype.capture.project import capture_project
 from holotype.clock import timestamp
 from holotype.compare.analyses import compare_analyses, compare_project_seed
+from holotype.compare.causes import Now, candidate_causes
 from holotype.compare.runs import (
     compare_two_runs,
     compare_with_baselines,
@@ -73,13 +75,29 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     store = ProjectStore(root)
     with store.one_writer():
         return _run_and_judge(root, config, lock, plan, store, selected, findings, warnings, twice=twice,
-                              progress=progress, runner=runner, jobs=jobs, cluster=cluster)
+                              progress=progress, runner=runner, jobs=jobs, cluster=cluster, python=python)
+
+
+def _not_exact(f: Finding) -> bool:
+    """A failing output, or one within tolerance but not byte-identical: worth a list of candidate causes."""
+    return f.kind in ("output.mismatch", "output.shape", "output.unreadable") or (
+        f.kind == "output.match" and f.message != "identical bytes")
+
+
+def _with_candidates(findings: list[Finding], moved: list[tuple[str, Finding]], config: Config,
+                     lock: LockContents, python: str | None, *, project_seed: int) -> list[Finding]:
+    """Attach to each moved output the recorded differences that can move its analysis (captured once, now)."""
+    capture = capture_project(config, python_override=python)
+    now = Now(capture.environment, capture.data.records, capture.numerics, project_seed)
+    causes = {name: tuple(candidate_causes(name, lock, now)) for name in {n for n, _ in moved}}
+    by_finding = {id(f): causes[name] for name, f in moved}
+    return [replace(f, candidates=by_finding[id(f)]) if id(f) in by_finding else f for f in findings]
 
 
 def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, store: ProjectStore,
                    selected: list[str], findings: list[Finding], warnings: tuple[str, ...], *, twice: bool,
                    progress: RunEvents | None, runner: Runner | None, jobs: int | None,
-                   cluster: str | None) -> Judgement:
+                   cluster: str | None, python: str | None = None) -> Judgement:
     store.prepare()
     runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
                                    digest_file=LOCK_NAME)
@@ -90,6 +108,7 @@ def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, s
             seconds = {r.name: r for r in runner.run(plan, progress, log_suffix=".second")}
     finally:
         runner.close()
+    moved: list[tuple[str, Finding]] = []  # outputs that did not reproduce byte for byte, by analysis
     for result in results:
         findings += process_findings(result)
         record = lock.analyses.get(result.name)
@@ -107,9 +126,13 @@ def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, s
                 findings.append(Finding("seed", result.name, "seed.changed",
                                         f"seed {record.seed} recorded, {result.seed} used", record.seed, result.seed))
             # an output that differs between two runs is reported once, as nondeterministic, not also as a mismatch
-            findings += [f for f in compare_with_baselines(record, result, store.baselines, config.rulebook)
-                         if not (f.subject in unstable and f.kind == "output.mismatch")]
+            judged = [f for f in compare_with_baselines(record, result, store.baselines, config.rulebook)
+                      if not (f.subject in unstable and f.kind == "output.mismatch")]
+            findings += judged
+            moved += [(result.name, f) for f in judged if _not_exact(f)]
         findings += unstable.values()
+    if moved:
+        findings = _with_candidates(findings, moved, config, lock, python, project_seed=plan.project_seed)
     report = Judgement("replay", apply_policy(findings, config.policy), warnings=warnings)
     try:
         store.save_last_replay({"when": timestamp(), "analyses": selected,

@@ -9,7 +9,7 @@ from holotype.phrasing import clip, visible
 from holotype.redaction import redact, secret_values
 
 MAX_LISTED = 50  # list values (columns, paths) kept in a finding beyond which only the count is said
-AREAS = ("interpreter", "platform", "package", "data", "code", "seed", "analysis", "output", "lockfile")
+AREAS = ("interpreter", "platform", "package", "numeric", "data", "code", "seed", "analysis", "output", "lockfile")
 
 
 @dataclass(frozen=True)
@@ -40,6 +40,8 @@ class Finding:
     actual: Any = None
     severity: str = "info"
     stats: OutputStats | None = None
+    # for an output that did not reproduce exactly: recorded differences that can move it, most likely first
+    candidates: tuple[str, ...] = ()
 
     def with_severity(self, severity: str) -> Finding:
         return replace(self, severity=severity)
@@ -68,6 +70,8 @@ class Finding:
                 error_decades=s.error_decades,
                 columns=list(s.columns),
             )
+        if self.candidates:
+            out["candidates"] = list(self.candidates)
         return out
 
 
@@ -99,7 +103,8 @@ def _clean_finding(f: Finding, secrets: dict[str, str]) -> Finding:
         columns = tuple({k: _clean_value(v, secrets) for k, v in c.items()} for c in stats.columns)
         stats = replace(stats, worst=_clean_value(stats.worst, secrets), columns=columns)
     return replace(f, subject=_clean_text(f.subject, secrets), message=_clean_text(str(clip(f.message, 4000)), secrets),
-                   expected=_clean_value(f.expected, secrets), actual=_clean_value(f.actual, secrets), stats=stats)
+                   expected=_clean_value(f.expected, secrets), actual=_clean_value(f.actual, secrets), stats=stats,
+                   candidates=tuple(_clean_text(c, secrets) for c in f.candidates))
 
 
 @dataclass(frozen=True)

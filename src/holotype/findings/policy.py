@@ -60,6 +60,14 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.unreadable": "fail",
     "output.rule": "fail",  # a rule key the output's format cannot honour (key on JSON, say): never ignored
     "output.foreign_write": "fail",  # an analysis wrote a file another analysis declares as its output
+    # the numeric stack: native libraries, kernels, SIMD, CPU, numerics variables (docs/numerics.md)
+    "numeric.library": "warn",  # another BLAS/LAPACK/OpenMP vendor or major.minor version, added or gone
+    "numeric.library_patch": "info",  # the same library at another patch version
+    "numeric.kernel": "info",  # the CPU kernel the library picked at run time
+    "numeric.simd": "info",  # SIMD extensions NumPy detected or dispatches, the CPU's floating-point flags
+    "numeric.cpu": "info",
+    "numeric.threads": "info",  # thread counts or threading layer of a native library
+    "numeric.variable": "warn",  # OPENBLAS_CORETYPE, MKL_CBWR, OMP_NUM_THREADS, …
     # notes about the lockfile and what a command did
     "lockfile.note": "info",
 }

@@ -10,16 +10,15 @@ from pathlib import Path
 
 from holotype.config import Analysis, Config
 from holotype.seeds import ANALYSIS_VARIABLE, PROJECT_SEED_VARIABLE, SEED_VARIABLE, derive_seed
+from holotype.threads import THREAD_VARIABLES, threadpoolctl_folder
 
-THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS", "BLIS_NUM_THREADS",
-                    "NUMEXPR_NUM_THREADS", "VECLIB_MAXIMUM_THREADS")
 # what a dry run shows of the environment: holotype's own variables and these
 SHOWN_VARIABLES = ("PYTHONHASHSEED", "VIRTUAL_ENV", "PYTHONPATH", *THREAD_VARIABLES)
 
 
-def seeding_folder() -> str:
-    """The folder holding holotype's sitecustomize for seed_globals."""
-    return str(resources.files("holotype.run").joinpath("seeding"))
+def hook_folder() -> str:
+    """The folder holding holotype's sitecustomize: seed_globals and the run-time report of what was used."""
+    return str(resources.files("holotype.run").joinpath("hook"))
 
 
 def analysis_environment(config: Config, python: str, analysis: Analysis, project_seed: int) -> dict[str, str]:
@@ -39,8 +38,11 @@ def analysis_environment(config: Config, python: str, analysis: Analysis, projec
     if config.threads is not None:
         for name in THREAD_VARIABLES:
             env[name] = str(config.threads)
-    if config.seed_globals:
-        env["PYTHONPATH"] = seeding_folder() + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+    env["HOLOTYPE_SEED_GLOBALS"] = "1" if config.seed_globals else "0"
+    env["PYTHONPATH"] = hook_folder() + (os.pathsep + env["PYTHONPATH"] if env.get("PYTHONPATH") else "")
+    folder = threadpoolctl_folder()
+    if folder:
+        env["HOLOTYPE_THREADPOOLCTL"] = folder
     return env
 
 

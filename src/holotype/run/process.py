@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import json
 import os
 import shlex
 import signal
@@ -157,13 +158,19 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
         result.error = step.split_error
         return result
     before = {out: _stamp(step.cwd / out) for out in step.outputs}
+    report = log_path.with_name(log_path.name.removesuffix(".log") + ".used.json")
+    try:
+        report.unlink()
+    except OSError:
+        pass
+    env = {**step.env, "HOLOTYPE_RUN_REPORT": str(report)}
     tail: deque[str] = deque(maxlen=TAIL_LINES)
     start = time.monotonic()
     try:
         with _open_log(log_path, result) as log:
             log.write(LOG_HEADER.format(name=step.name, argv=shlex.join(step.argv), seed=step.seed).encode())
             log.flush()
-            proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=step.env, stdin=subprocess.DEVNULL,
+            proc = subprocess.Popen(list(step.argv), cwd=step.cwd, env=env, stdin=subprocess.DEVNULL,
                                     stdout=subprocess.PIPE, stderr=subprocess.STDOUT, start_new_session=True)
             LIVE.add(proc)
             try:
@@ -199,4 +206,21 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
     result.tail = list(tail)
     if result.error is None and not result.timed_out and result.returncode == 0:
         collect_outputs(step, before, result)
+    read_usage(report, result)
     return result
+
+
+def read_usage(report: Path, result: RunResult) -> None:
+    """What the run-time hook said the analysis process imported and loaded (nothing, if it said nothing)."""
+    try:
+        doc = json.loads(read_regular(report, limit=16 << 20))
+    except (InputError, ValueError):
+        return
+    if not isinstance(doc, dict):
+        return
+    modules = doc.get("modules")
+    if isinstance(modules, list):
+        result.modules = tuple(str(m) for m in modules if isinstance(m, str))
+    libraries = doc.get("libraries")
+    if isinstance(libraries, list):
+        result.libraries = tuple(dict(x) for x in libraries if isinstance(x, dict))

@@ -1,0 +1,126 @@
+"""Put first on PYTHONPATH of every analysis holotype runs. Standard library only; Python 3.8 and newer.
+
+1. With seed_globals (HOLOTYPE_SEED set and HOLOTYPE_SEED_GLOBALS not "0"): seed the global generators at
+   start-up. `random` is seeded at once (cheap). NumPy's legacy global generator is seeded right after
+   `numpy.random` is first imported, by a meta-path hook, so a process that never imports NumPy pays nothing.
+2. With HOLOTYPE_RUN_REPORT set: at exit, write which top-level modules the process imported and, if it
+   loaded numeric libraries, which BLAS/LAPACK/OpenMP libraries (threadpoolctl; holotype's own copy is
+   appended to sys.path from HOLOTYPE_THREADPOOLCTL, so an installed one wins). That is how holotype
+   knows what each analysis used at run time, lazily imported dependencies included.
+
+Any sitecustomize the environment already had is imported afterwards.
+"""
+
+import os
+import sys
+
+
+def _seed_value():
+    try:
+        return int(os.environ["HOLOTYPE_SEED"])
+    except (KeyError, ValueError):
+        return None
+
+
+class _SeedNumpyAfterImport:
+    """Finds nothing itself; wraps the real loader of numpy.random to seed it once loaded."""
+
+    def __init__(self, seed):
+        self.seed = seed
+
+    def find_spec(self, name, path=None, target=None):
+        if name != "numpy.random":
+            return None
+
+        for finder in sys.meta_path:
+            if finder is self or not hasattr(finder, "find_spec"):
+                continue
+            spec = finder.find_spec(name, path, target)
+            if spec is not None and spec.loader is not None:
+                spec.loader = _SeedingLoader(spec.loader, self.seed)
+                return spec
+        return None
+
+
+class _SeedingLoader:
+    def __init__(self, inner, seed):
+        self.inner = inner
+        self.seed = seed
+
+    def create_module(self, spec):
+        return self.inner.create_module(spec)
+
+    def exec_module(self, module):
+        self.inner.exec_module(module)
+        try:
+            module.seed(self.seed)
+        except Exception:
+            pass
+
+    def __getattr__(self, name):
+        return getattr(self.inner, name)
+
+
+NUMERIC = ("numpy", "scipy", "numexpr", "sklearn", "torch")
+
+
+def _report():
+    path = os.environ.get("HOLOTYPE_RUN_REPORT")
+    if not path:
+        return
+    modules = sorted({name.partition(".")[0] for name in list(sys.modules) if name and not name.startswith("_")})
+    libraries = None
+    if any(name in sys.modules for name in NUMERIC):
+        try:
+            try:
+                from threadpoolctl import threadpool_info
+            except ImportError:
+                folder = os.environ.get("HOLOTYPE_THREADPOOLCTL")
+                if not folder:
+                    raise
+                sys.path.append(folder)
+                from threadpoolctl import threadpool_info
+            libraries = [dict(info) for info in threadpool_info()]
+        except Exception:
+            libraries = None
+    try:
+        import json
+
+        with open(path, "w", encoding="utf-8") as fh:
+            json.dump({"modules": modules, "libraries": libraries}, fh)
+    except Exception:
+        pass  # the report is a help, never a reason for the analysis to fail
+
+
+def _install():
+    import atexit
+
+    atexit.register(_report)
+    seed = _seed_value()
+    if seed is None or os.environ.get("HOLOTYPE_SEED_GLOBALS") == "0":
+        return
+    import random
+
+    random.seed(seed)
+    if "numpy.random" in sys.modules:
+        sys.modules["numpy.random"].seed(seed)
+    else:
+        sys.meta_path.insert(0, _SeedNumpyAfterImport(seed))
+
+
+def _chain_previous():
+    # import the sitecustomize that would have run without holotype's folder on sys.path
+    here = os.path.dirname(os.path.abspath(__file__))
+    import importlib.machinery
+    import importlib.util
+
+    others = [p for p in sys.path if os.path.abspath(p or ".") != here]
+    spec = importlib.machinery.PathFinder.find_spec("sitecustomize", others)
+    if spec is None or spec.loader is None:
+        return
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+
+
+_install()
+_chain_previous()
