@@ -23,6 +23,7 @@ class OutputLine:
     rtol: float | None = None
     ok: bool | None = None
     by_bytes: bool = False  # compared byte for byte (no reader for the format)
+    candidates: tuple[str, ...] = ()  # for an output the latest replay did not reproduce exactly
 
 
 @dataclass

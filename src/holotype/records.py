@@ -104,8 +104,9 @@ class AnalysisRecord:
     seed: int = entry()
     outputs: dict[str, OutputRecord] = field(default_factory=dict)
     inputs: tuple[str, ...] = ()
-    modules: tuple[str, ...] = ()  # top-level modules the analysis process imported (the run-time hook)
+    modules: tuple[str, ...] = ()  # top-level modules the analysis process imported, standard library aside
     libraries: tuple[str, ...] = ()  # NativeLibrary keys of the libraries loaded in that process
+    observed: bool = False  # the run-time hook reported both (else they are unknown, not empty)
 
 
 class Change(NamedTuple):

@@ -85,7 +85,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                     result.name, result.command, result.seed, outputs, analysis.inputs,
                     modules=tuple(m for m in result.modules or () if m not in capture.environment.stdlib
                                   and m != "sitecustomize"),
-                    libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})))
+                    libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})),
+                    observed=result.modules is not None)
                 findings.append(Finding("analysis", result.name, "lockfile.note",
                                         f"ran in {result.seconds:.1f}s with seed {result.seed}; "
                                         f"{len(outputs)} output(s) captured"))
@@ -94,7 +95,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                 if any(a.name == name for a in config.analyses):
                     a = config.analysis(name)
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
-                                                    a.inputs, rec.modules, rec.libraries)
+                                                    a.inputs, rec.modules, rec.libraries, rec.observed)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,

@@ -88,7 +88,7 @@ def _with_candidates(findings: list[Finding], moved: list[tuple[str, Finding]], 
                      lock: LockContents, python: str | None, *, project_seed: int) -> list[Finding]:
     """Attach to each moved output the recorded differences that can move its analysis (captured once, now)."""
     capture = capture_project(config, python_override=python)
-    now = Now(capture.environment, capture.data.records, capture.numerics, project_seed)
+    now = Now(capture.environment, capture.data.records, capture.code.records, capture.numerics, project_seed)
     causes = {name: tuple(candidate_causes(name, lock, now)) for name in {n for n, _ in moved}}
     by_finding = {id(f): causes[name] for name, f in moved}
     return [replace(f, candidates=by_finding[id(f)]) if id(f) in by_finding else f for f in findings]

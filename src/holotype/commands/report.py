@@ -49,6 +49,7 @@ def gather_provenance(root: Path) -> Provenance:
             elif f is not None:
                 line.ok = f.get("severity") != "fail"
                 line.result = str(f.get("message", ""))
+                line.candidates = tuple(str(c) for c in f.get("candidates") or ())
                 line.by_bytes = f.get("tolerance") == "byte-equal"
                 err = f.get("max_rel_err")
                 if not line.by_bytes:

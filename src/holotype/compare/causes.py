@@ -3,7 +3,8 @@
 This is a ranking of candidates, not proof (`holotype pinpoint` is meant to turn candidates into proof).
 The order follows what is known to matter most, most specific first:
 
-1. the analysis' data inputs (its declared `inputs`, else every data file) and its seed: your own changes;
+1. the analysis' data inputs (its declared `inputs`, else every data file), its seed, then code: your own
+   changes;
 2. the packages the analysis used (imported at run time, or marked used in the lock) whose version or
    origin changed, those it imported itself before their dependencies;
 3. the native libraries the analysis loaded (BLAS/LAPACK/OpenMP): another version, kernel or thread count;
@@ -18,8 +19,6 @@ from dataclasses import dataclass
 from holotype.compare.digests import compare_file_sets
 from holotype.records import AnalysisRecord, Environment, FileRecord, LockContents, NumericStack
 
-CAVEAT = "a ranking of candidates, not proof"
-
 
 @dataclass(frozen=True)
 class Now:
@@ -27,13 +26,14 @@ class Now:
 
     environment: Environment
     data: dict[str, FileRecord]
+    code: dict[str, FileRecord]
     numerics: NumericStack | None
     project_seed: int
 
 
 def _used_distributions(analysis: AnalysisRecord, lock: LockContents) -> tuple[list[str], list[str]]:
     """(imported by the analysis itself, the rest it used): from the run-time modules, else the lock's `used`."""
-    if analysis.modules:
+    if analysis.observed:
         provides: dict[str, str] = {}
         for dist, record in lock.packages.items():
             for module in record.top_level or (dist.replace("-", "_"),):
@@ -76,6 +76,8 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
             out.append(f"data {f.subject}: {f.message}")
     if lock.project_seed is not None and lock.project_seed != now.project_seed:
         out.append(f"seed: project seed {lock.project_seed} recorded, {now.project_seed} used")
+    for f in compare_file_sets("code", lock.code, now.code):
+        out.append(f"code {f.subject}: {f.message}")
     direct, indirect = _used_distributions(analysis, lock)
     for group, how in ((direct, "imported by the analysis"), (indirect, "used by what it imports")):
         for dist in group:
@@ -89,7 +91,7 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
                            f"{found.origin.describe()}")
     old_stack, new_stack = lock.numerics, now.numerics
     if old_stack is not None and new_stack is not None:
-        loaded = set(analysis.libraries) if analysis.modules else {lib.key for lib in old_stack.libraries}
+        loaded = set(analysis.libraries) if analysis.observed else {lib.key for lib in old_stack.libraries}
         before = {lib.key: lib for lib in old_stack.libraries if lib.key in loaded}
         after = {lib.key: lib for lib in new_stack.libraries}
         for key, lib in sorted(before.items()):
@@ -103,7 +105,7 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
                        if a != b]
             if changes:
                 out.append(f"native library {key} (loaded by the analysis): {', '.join(changes)}")
-        if loaded or not analysis.modules:
+        if loaded:
             for var in sorted(set(old_stack.variables) | set(new_stack.variables)):
                 a, b = old_stack.variables.get(var), new_stack.variables.get(var)
                 if a != b:

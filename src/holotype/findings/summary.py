@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+CAVEAT = "a ranking of candidates, not proof"  # said wherever candidate causes of a moved output are shown
+
 # the verdict words where "ok" would say too little
 VERDICTS = {"compare": ("match", "differ"), "replay": ("reproduced", "not reproduced")}
 

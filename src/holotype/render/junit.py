@@ -5,6 +5,7 @@ from __future__ import annotations
 import xml.etree.ElementTree as ET
 
 from holotype.findings import AREAS, Finding, Judgement
+from holotype.findings.summary import CAVEAT
 
 
 def render_junit(report: Judgement) -> str:
@@ -54,4 +55,7 @@ def _detail(f: Finding) -> str:
         lines.append(f"actual: {f.actual}")
     if f.stats is not None and f.stats.worst:
         lines.append(f"worst: {f.stats.worst}")
+    if f.candidates:
+        lines.append(f"what may have moved it ({CAVEAT}):")
+        lines += [f"  {i}. {c}" for i, c in enumerate(f.candidates, start=1)]
     return "\n".join(lines)

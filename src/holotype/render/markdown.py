@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from holotype.findings import Judgement
 from holotype.findings.policy import SEVERITY_ORDER
-from holotype.findings.summary import summary_line
+from holotype.findings.summary import CAVEAT, summary_line
 
 ICON = {"fail": "❌ fail", "warn": "⚠️ warn", "info": "ℹ️ info"}
 
@@ -23,8 +23,10 @@ def render_markdown(report: Judgement) -> str:
     if rows:
         lines += ["| | area | subject | finding |", "|---|---|---|---|"]
         for f in rows:
+            text = f.message + (f"\nwhat may have moved it ({CAVEAT}): " + "; ".join(
+                f"{i}. {c}" for i, c in enumerate(f.candidates, start=1)) if f.candidates else "")
             lines.append(f"| {ICON[f.severity]} | {cell(f.area)} | `{cell(f.subject).replace('`', 'ʼ')}` | "
-                         f"{cell(f.message)} |")
+                         f"{cell(text)} |")
     for note in report.notes:
         lines += ["", f"_{cell(note)}_"]
     return "\n".join(lines) + "\n"

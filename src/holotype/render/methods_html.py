@@ -7,7 +7,8 @@ from html import escape
 
 from holotype import __version__
 from holotype.appendix import CAUTION, OutputLine, Provenance
-from holotype.render.methods_markdown import run_settings
+from holotype.findings.summary import CAVEAT
+from holotype.render.methods_markdown import numeric_lines, run_settings
 
 STYLE = """
 body { font-family: Georgia, 'Times New Roman', serif; max-width: 52em; margin: 2em auto; color: #111;
@@ -116,6 +117,8 @@ def render_methods_html(prov: Provenance) -> str:
              "<h2>Analyses and results</h2>"]
     parts.append("<h2>Run settings</h2><ul>" + "".join(f"<li>{escape(x)}</li>" for x in run_settings(prov))
                  + "</ul>")
+    parts.append("<h2>Numerical environment</h2><ul>" + "".join(f"<li>{escape(x)}</li>" for x in numeric_lines(prov))
+                 + "</ul>")
     if prov.last_replay_when:
         parts.append(f"<p>Latest replay: {escape(prov.last_replay_text)}.</p>")
     else:
@@ -128,5 +131,9 @@ def render_methods_html(prov: Provenance) -> str:
                               escape(line.tolerance), escape(line.result)] for line in lines]))
         if lines:
             parts.append(ErrorChart(name, lines).svg())
+        for line in lines:
+            if line.candidates:
+                parts.append(f"<p>What may have moved <code>{escape(line.path)}</code> ({escape(CAVEAT)}):</p><ol>"
+                             + "".join(f"<li>{escape(c)}</li>" for c in line.candidates) + "</ol>")
     parts.append(f"<h2>Caution</h2><p class=\"caution\">{escape(CAUTION)}</p></body></html>\n")
     return "\n".join(parts)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from holotype import __version__
 from holotype.appendix import CAUTION, Provenance
+from holotype.findings.summary import CAVEAT
 from holotype.render.markdown import cell
 
 
@@ -14,6 +15,27 @@ def run_settings(prov: Provenance) -> list[str]:
     globals_ = ("global generators of random and NumPy seeded at start-up (seed_globals = true)" if prov.seed_globals
                 else "global generators not seeded by holotype (seed_globals = false)")
     return [threads, globals_]
+
+
+def numeric_lines(prov: Provenance) -> list[str]:
+    """The numeric stack in words (shared with the HTML appendix)."""
+    stack = prov.lock.numerics
+    if stack is None:
+        return ["not recorded (no numeric package was installed in the analysis interpreter)"]
+    lines = [f"{lib.user_api.upper()} {lib.internal_api} {lib.version or '(version unknown)'}, shipped by "
+             f"{lib.bundled_by or lib.file}: kernel {lib.architecture or 'n/a'}, {lib.num_threads} thread(s), "
+             f"{lib.threading_layer or 'n/a'} threading" for lib in stack.libraries]
+    if stack.numpy_version:
+        lines.append(f"NumPy {stack.numpy_version} built against {stack.numpy_blas or 'unknown'} "
+                     f"(LAPACK {stack.numpy_lapack or 'unknown'}); SIMD baseline "
+                     f"{', '.join(stack.numpy_cpu_baseline) or 'none'}, dispatched "
+                     f"{', '.join(stack.numpy_cpu_dispatch) or 'none'}")
+    lines.append(f"CPU: {stack.cpu_vendor} {stack.cpu_model}, {stack.logical_cpus} logical CPUs; "
+                 f"floating-point flags {', '.join(stack.cpu_flags) or 'none recorded'}")
+    if stack.variables:
+        lines.append("Numerics variables: " + ", ".join(f"{k}={v}" for k, v in sorted(stack.variables.items())))
+    lines.append(f"Inspected with {stack.inspection} after importing {', '.join(stack.imported)}")
+    return lines
 
 
 def render_methods_markdown(prov: Provenance) -> str:
@@ -40,6 +62,7 @@ def render_methods_markdown(prov: Provenance) -> str:
             "(big-endian) of SHA-256 of \"<project seed>/<analysis name>\".", ""]
     out += [f"- {cell(name)}: {rec.seed}" for name, rec in sorted(lock.analyses.items())]
     out += ["", "## Run settings", ""] + [f"- {cell(line)}" for line in run_settings(prov)]
+    out += ["", "## Numerical environment", ""] + [f"- {cell(line)}" for line in numeric_lines(prov)]
     out += ["", "## Analyses and results", ""]
     if prov.last_replay_when:
         out.append(f"Latest replay: {cell(prov.last_replay_text)}.")
@@ -49,5 +72,11 @@ def render_methods_markdown(prov: Provenance) -> str:
     for line in prov.outputs:
         out.append(f"| {cell(line.analysis)} | `{cell(line.path)}` | `{line.sha256[:16]}…` | {cell(line.tolerance)} | "
                    f"{cell(line.result)} |")
+    moved = [line for line in prov.outputs if line.candidates]
+    if moved:
+        out += ["", f"### What may have moved outputs that did not reproduce exactly ({CAVEAT})", ""]
+        for line in moved:
+            out.append(f"- `{cell(line.path)}`: " + "; ".join(f"{i}. {cell(c)}"
+                                                             for i, c in enumerate(line.candidates, start=1)))
     out += ["", "## Caution", "", CAUTION, ""]
     return "\n".join(out)

@@ -8,7 +8,7 @@ from rich.text import Text
 
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import SEVERITY_ORDER
-from holotype.findings.summary import summary_line, verdict_word
+from holotype.findings.summary import CAVEAT, summary_line, verdict_word
 from holotype.phrasing import one_line
 
 SEVERITY_STYLE = {"fail": "bold red", "warn": "yellow", "info": "dim"}
@@ -42,6 +42,8 @@ class FindingsTable:
                 message = Text(f.message)
                 if f.stats is not None and f.stats.error_decades and f.severity != "info":
                     message.append("\n" + decade_line(f), style="dim")
+                if f.candidates:
+                    message.append("\n" + candidates_line(f), style="dim")
                 table.add_row(Text(SEVERITY_LABEL[f.severity], style=SEVERITY_STYLE[f.severity]), f.area,
                               Text(f.subject), message)
             parts.append(table)
@@ -62,6 +64,8 @@ class FindingsTable:
                              f"  {f.area:<11} {one_line(f.subject)}: {one_line(f.message)}")
         if f.stats is not None and f.stats.error_decades and f.severity != "info":
             text.append("\n" + " " * 6 + decade_line(f), style="dim")
+        if f.candidates:
+            text.append("\n" + " " * 6 + one_line(candidates_line(f)), style="dim")
         return text
 
     def verdict(self) -> Text:
@@ -106,6 +110,13 @@ class ColumnBreakdown:
         if len(self.failing) > self.SHOWN:
             table.caption = f"and {len(self.failing) - self.SHOWN} more column(s) outside tolerance"
         return table
+
+
+def candidates_line(f: Finding, shown: int = 5) -> str:
+    """'what may have moved it (a ranking of candidates, not proof): 1. … 2. …'"""
+    items = [f"{i}. {c}" for i, c in enumerate(f.candidates[:shown], start=1)]
+    more = f" (and {len(f.candidates) - shown} more)" if len(f.candidates) > shown else ""
+    return f"what may have moved it ({CAVEAT}): " + "; ".join(items) + more
 
 
 def decade_line(f: Finding) -> str:
