@@ -6,17 +6,19 @@ import tomllib
 from dataclasses import replace
 from pathlib import Path
 
+from holotype.errors import InputError
 from holotype.records import Environment, PackageRecord
+from holotype.safe_files import read_regular
 
 
 def declared_requirements(root: Path) -> list[str]:
     """`[project] dependencies` from the project's pyproject.toml, if any."""
     path = root / "pyproject.toml"
-    if not path.is_file():
+    if not path.exists():
         return []
     try:
-        doc = tomllib.loads(path.read_text(encoding="utf-8"))
-    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        doc = tomllib.loads(read_regular(path, limit=16 << 20).decode("utf-8"))
+    except (InputError, UnicodeDecodeError, tomllib.TOMLDecodeError, RecursionError):
         return []  # the config loader reports a broken pyproject.toml where it matters
     deps = doc.get("project", {}).get("dependencies", []) if isinstance(doc.get("project"), dict) else []
     return [d for d in deps if isinstance(d, str)]

@@ -9,6 +9,7 @@ from typing import Any
 from holotype.errors import HolotypeError
 from holotype.phrasing import listed
 from holotype.records import LockContents, PackageRecord
+from holotype.safe_files import open_regular
 from holotype.standards.requirements import expand_home
 
 
@@ -33,8 +34,11 @@ def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
 
 
 def _sha256(path: Path) -> str:
-    with open(path, "rb") as fh:
-        return hashlib.file_digest(fh, "sha256").hexdigest()
+    h = hashlib.sha256()
+    with open_regular(path, follow=True, what="the wheel") as fh:
+        for block in iter(lambda: fh.read(1 << 20), b""):
+            h.update(block)
+    return h.hexdigest()
 
 
 def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
