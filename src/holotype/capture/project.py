@@ -11,8 +11,9 @@ from holotype.capture.fingerprints import FingerprintResult, HashProgress, finge
 from holotype.capture.imports import scan_imports
 from holotype.capture.numerics import finish_inspection, start_inspection
 from holotype.capture.usage import declared_requirements, mark_used, used_closure
-from holotype.capture.walk import ProjectFile, ProjectWalker
+from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex
 from holotype.config import Config
+from holotype.errors import ConfigError
 from holotype.records import Environment, NumericStack
 
 
@@ -28,13 +29,32 @@ class ProjectCapture:
 
 
 def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
-    """Data files, code files, and data patterns that matched nothing."""
+    """Data files, code files, and data patterns that matched nothing.
+
+    Outputs are never inputs: declared outputs are left out of both sets (an output written inside a data
+    folder is not data), and the default code set also skips the folders outputs are written to (an executed
+    notebook under results/ is not code). A data or code entry that names an output itself is a config error.
+    """
+    outputs = {out: a.name for a in config.analyses for out in a.outputs}
+    for key, patterns in (("data", config.data), ("code", config.code or ())):
+        for pattern in patterns:
+            plain = pattern.rstrip("/")
+            regex = glob_regex(plain) if GLOB_CHARS.intersection(plain) else None
+            for out, name in outputs.items():
+                if out == plain or (regex is not None and regex.match(out)):
+                    raise ConfigError(f"'{key}' entry '{pattern}' takes in '{out}', an output of analysis '{name}'; "
+                                      "an output cannot also be an input the record fingerprints (narrow the "
+                                      "pattern, or move the output)", config.source)
     walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source)
     data, unmatched = walker.collect(config.data)
     if config.code is not None:
         code, _ = walker.collect(config.code)
     else:
-        code = walker.code_files(data)
+        folders = {o.rsplit("/", 1)[0] + "/" for o in outputs if "/" in o}
+        code = {rel: f for rel, f in walker.code_files(data).items()
+                if not any(rel.startswith(folder) for folder in folders)}
+    data = {rel: f for rel, f in data.items() if rel not in outputs}
+    code = {rel: f for rel, f in code.items() if rel not in outputs}
     return data, code, unmatched
 
 
