@@ -45,3 +45,68 @@ def test_a_data_pattern_naming_an_output_is_a_config_error(tmp_path: Path) -> No
     result = run_cli("record", "--no-run", "-C", tmp_path)
     assert result.code == 2
     assert "'results/*.csv'" in result.err and "'results/summary.csv'" in result.err and "analysis 's'" in result.err
+
+
+def judged_project(root: Path) -> Path:
+    write(root / "data" / "a.csv", "x\n1\n")
+    write(root / "run.py", "import os\nos.makedirs('out', exist_ok=True)\nopen('out/r.csv', 'w').write('PC1,v\\n1,2\\n')\n")
+    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 1\nthreads = 1\n'
+                                  'seed_globals = true\n\n[tolerance]\nrtol = 1e-9\natol = 1e-12\n\n'
+                                  '[[rules]]\nmatch = "out/r.csv:PC*"\nrtol = 1e-6\n\n'
+                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/r.csv"]\ntimeout = 60\n')
+    assert run_cli("record", "-C", root).code == 0
+    return root
+
+
+def configure(root: Path, old: str, new: str) -> None:
+    text = (root / "holotype.toml").read_text()
+    assert old in text
+    (root / "holotype.toml").write_text(text.replace(old, new))
+
+
+def judgement_findings(root: Path) -> tuple[int, list[dict[str, str]]]:
+    result = run_cli("check", "-C", root, "--format", "json")
+    return result.code, [f for f in json.loads(result.out)["findings"] if f["area"] == "judgement"]
+
+
+def test_a_loosened_tolerance_and_seeding_fail_the_check(tmp_path: Path) -> None:
+    root = judged_project(tmp_path / "p")
+    assert judgement_findings(root) == (0, [])
+    configure(root, "rtol = 1e-9", "rtol = 0.05")
+    configure(root, "seed_globals = true", "seed_globals = false")
+    code, found = judgement_findings(root)
+    assert code == 1
+    loosened = {f["subject"]: f["message"] for f in found if f["kind"] == "judgement.loosened"}
+    assert "rtol 1e-09 → 0.05" in loosened["out/r.csv"]
+    assert "seed_globals" in loosened and all(f["severity"] == "fail" for f in found)
+
+
+def test_a_rule_that_reaches_more_a_dropped_thread_pin_and_a_downgraded_failure_fail(tmp_path: Path) -> None:
+    root = judged_project(tmp_path / "p")
+    configure(root, 'match = "out/r.csv:PC*"\nrtol = 1e-6', 'match = "out/r.csv:PC*"\nrtol = 1e-6\nsign_free = true')
+    configure(root, "threads = 1\n", "")
+    configure(root, "[tolerance]", '[policy]\n"output.mismatch" = "warn"\n\n[tolerance]')
+    code, found = judgement_findings(root)
+    kinds = {f["subject"]: f["kind"] for f in found}
+    assert code == 1
+    assert kinds["out/r.csv:PC*"] == "judgement.loosened"
+    assert kinds["threads"] == "judgement.loosened" and kinds["policy.output.mismatch"] == "judgement.loosened"
+
+
+def test_tightening_warns_and_a_changed_timeout_is_said(tmp_path: Path) -> None:
+    root = judged_project(tmp_path / "p")
+    configure(root, "rtol = 1e-9", "rtol = 1e-12")
+    configure(root, "timeout = 60", "timeout = 30")
+    code, found = judgement_findings(root)
+    assert code == 0 and [f["kind"] for f in found] == ["judgement.tightened"]
+    assert "timeout 60.0 recorded, 30.0 in the config" in run_cli("check", "-C", root).out
+
+
+def test_diff_shows_a_loosened_judgement_between_two_records(tmp_path: Path) -> None:
+    root = judged_project(tmp_path / "p")
+    (tmp_path / "before.lock").write_bytes((root / "holotype.lock").read_bytes())
+    configure(root, "rtol = 1e-9", "rtol = 0.05")
+    assert run_cli("record", "-C", root).code == 0
+    result = run_cli("diff", tmp_path / "before.lock", root / "holotype.lock", "--format", "json")
+    found = [f for f in json.loads(result.out)["findings"] if f["kind"] == "judgement.loosened"]
+    assert result.code == 1 and found and "0.05" in found[0]["message"]

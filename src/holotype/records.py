@@ -90,6 +90,25 @@ class FileRecord:
 
 
 @dataclass(frozen=True)
+class RuleRecord:
+    """One [[rules]] entry as it decided verdicts: its match and the keys it set."""
+
+    match: str
+    settings: dict[str, Any] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class JudgementRecord:
+    """Everything that decides a verdict besides the outputs themselves, as recorded."""
+
+    tolerance: dict[str, Any] = field(default_factory=dict)  # the project default, keys as in [tolerance]
+    rules: tuple[RuleRecord, ...] = ()
+    threads: int | None = None
+    seed_globals: bool = False
+    policy: dict[str, str] = field(default_factory=dict)  # the [policy] overrides
+
+
+@dataclass(frozen=True)
 class OutputRecord:
     path: str = entry(from_key=True)
     sha256: str = entry(digest=True)
@@ -107,6 +126,7 @@ class AnalysisRecord:
     modules: tuple[str, ...] = ()  # top-level modules the analysis process imported, standard library aside
     libraries: tuple[str, ...] = ()  # NativeLibrary keys of the libraries loaded in that process
     observed: bool = False  # the run-time hook reported both (else they are unknown, not empty)
+    timeout: float | None = None
 
 
 class Change(NamedTuple):
@@ -191,6 +211,7 @@ class LockContents:
     analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)
     history: list[HistoryEntry] = entry(default_factory=list, order=10)
     numerics: NumericStack | None = entry(default=None, order=5.5)
+    judgement: JudgementRecord | None = entry(default=None, order=3.5)
     # said once to the user when this was read from an older format; never written
     notices: tuple[str, ...] = entry(default=(), skip=True)
 

@@ -9,6 +9,7 @@ from holotype.capture.project import capture_project
 from holotype.compare.analyses import check_baselines, compare_analyses, compare_project_seed
 from holotype.compare.digests import compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
+from holotype.compare.judgement import compare_judgement, config_judgement
 from holotype.compare.numerics import compare_numerics
 from holotype.config import load_config
 from holotype.findings import Finding, Judgement
@@ -32,6 +33,10 @@ def verify_project(root: Path, *, command: str = "check", strict: bool = False, 
     findings += compare_file_sets("data", lock.data, now.data.records, now.data.problems)
     findings += compare_file_sets("code", lock.code, now.code.records, now.code.problems)
     findings += compare_project_seed(config, lock)
+    if config.source is not None:
+        outputs = [out for rec in lock.analyses.values() for out in rec.outputs]
+        findings += compare_judgement(lock.judgement, config_judgement(config), outputs,
+                                      then="recorded", now=f"in {config.source.name}")
     findings += compare_analyses(config, lock)
     findings += check_baselines(BaselineStore(root), lock, verify=full)
     for rel, problem in now.code_problems:

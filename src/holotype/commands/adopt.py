@@ -6,6 +6,7 @@ import hashlib
 from pathlib import Path
 
 from holotype.clock import current_user, timestamp
+from holotype.compare.judgement import config_judgement
 from holotype.config import load_config
 from holotype.errors import HolotypeError, InputError
 from holotype.findings import Finding, Judgement
@@ -52,10 +53,13 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
                                             f"new baseline {digest[:12]}… (was {previous[:12] or 'none'}…)",
                                             previous or None, digest))
                 outputs[out] = OutputRecord(out, digest, len(data), config.rulebook.for_output(out).summary())
-            updated[analysis.name] = AnalysisRecord(analysis.name, analysis.command, derive_seed(seed, analysis.name),
-                                                    outputs, analysis.inputs)
+            updated[analysis.name] = AnalysisRecord(
+                analysis.name, analysis.command, derive_seed(seed, analysis.name), outputs, analysis.inputs,
+                old.modules if old else (), old.libraries if old else (), old.observed if old else False,
+                analysis.timeout)
         lock.analyses = updated
         lock.project_seed = seed
+        lock.judgement = config_judgement(config)  # what judged the adopted outputs, logged with the reason
         lock.history.append(HistoryEntry(when=timestamp(), who=current_user(), reason=reason.strip(),
                                          analyses=tuple(a.name for a in analyses), changes=tuple(changes)))
         write_lock(root / LOCK_NAME, lock)

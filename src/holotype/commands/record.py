@@ -10,6 +10,7 @@ from holotype.capture.fingerprints import HashProgress
 from holotype.capture.numerics import libraries_from_info
 from holotype.capture.project import capture_project
 from holotype.clock import timestamp
+from holotype.compare.judgement import config_judgement
 from holotype.compare.runs import failure_finding, process_findings
 from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
@@ -82,7 +83,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                                                 config.rulebook.for_output(out).summary())
                 analysis = config.analysis(result.name)
                 analyses[result.name] = AnalysisRecord(
-                    result.name, result.command, result.seed, outputs, analysis.inputs,
+                    result.name, result.command, result.seed, outputs, analysis.inputs, timeout=analysis.timeout,
                     modules=tuple(m for m in result.modules or () if m not in capture.environment.stdlib
                                   and m != "sitecustomize"),
                     libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})),
@@ -95,7 +96,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                 if any(a.name == name for a in config.analyses):
                     a = config.analysis(name)
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
-                                                    a.inputs, rec.modules, rec.libraries, rec.observed)
+                                                    a.inputs, rec.modules, rec.libraries, rec.observed, a.timeout)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,
@@ -111,6 +112,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             platform=capture.environment.platform,
             packages=capture.environment.packages,
             numerics=capture.numerics,
+            judgement=config_judgement(config),
             recorded=timestamp(),
             holotype=__version__,
             project_seed=config.seed,

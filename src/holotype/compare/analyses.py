@@ -41,6 +41,11 @@ def compare_analyses(config: Config, lock: LockContents, names: list[str] | None
             out.append(Finding("analysis", name, "analysis.changed",
                                f"command changed: '{rec.command}' recorded, '{a.command}' in the config",
                                rec.command, a.command))
+        if rec.observed or rec.timeout is not None:
+            if a.timeout != rec.timeout:
+                out.append(Finding("analysis", name, "analysis.changed",
+                                   f"timeout {rec.timeout or 'none'} recorded, {a.timeout or 'none'} in the config",
+                                   rec.timeout, a.timeout))
         if set(a.outputs) != set(rec.outputs):
             out.append(Finding("analysis", name, "analysis.changed", "declared outputs differ from the recorded ones",
                                sorted(rec.outputs), sorted(a.outputs)))

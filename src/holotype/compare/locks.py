@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from holotype.compare.digests import compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
+from holotype.compare.judgement import compare_judgement
 from holotype.compare.numerics import compare_numerics
 from holotype.findings import Finding
 from holotype.records import LockContents
@@ -17,6 +18,9 @@ def diff_locks(a: LockContents, b: LockContents, a_name: str = "A", b_name: str 
     findings += compare_packages(a.packages, b.packages, then=f"in {a_name}", now=f"in {b_name}",
                                  gone=f"not in {b_name}")
     findings += compare_numerics(a.numerics, b.numerics)
+    outputs = [out for rec in (*a.analyses.values(), *b.analyses.values()) for out in rec.outputs]
+    findings += compare_judgement(a.judgement, b.judgement, sorted(set(outputs)), then=f"in {a_name}",
+                                  now=f"in {b_name}")
     findings += compare_file_sets("data", a.data, b.data)
     findings += compare_file_sets("code", a.code, b.code)
     if a.project_seed != b.project_seed:

@@ -9,7 +9,8 @@ from holotype.phrasing import clip, visible
 from holotype.redaction import redact, secret_values
 
 MAX_LISTED = 50  # list values (columns, paths) kept in a finding beyond which only the count is said
-AREAS = ("interpreter", "platform", "package", "numeric", "data", "code", "seed", "analysis", "output", "lockfile")
+AREAS = ("interpreter", "platform", "package", "numeric", "data", "code", "seed", "judgement", "analysis", "output",
+         "lockfile")
 
 
 @dataclass(frozen=True)

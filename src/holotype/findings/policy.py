@@ -40,6 +40,10 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "code.unreadable": "warn",
     "code.unstable": "warn",
     "code.unparsable": "info",
+    # the judgement itself: tolerances, rules, threads, seed_globals, policy (as recorded vs now)
+    "judgement.loosened": "fail",  # a change that lets more through must not pass the gate silently
+    "judgement.tightened": "warn",
+    "judgement.changed": "warn",
     # seeds, analyses and outputs
     "seed.changed": "fail",
     "analysis.failed": "fail",
