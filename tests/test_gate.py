@@ -110,3 +110,31 @@ def test_diff_shows_a_loosened_judgement_between_two_records(tmp_path: Path) -> 
     result = run_cli("diff", tmp_path / "before.lock", root / "holotype.lock", "--format", "json")
     found = [f for f in json.loads(result.out)["findings"] if f["kind"] == "judgement.loosened"]
     assert result.code == 1 and found and "0.05" in found[0]["message"]
+
+
+def test_a_second_record_leaves_a_trace_and_tidy_lists_then_removes_old_baselines(tmp_path: Path,
+                                                                                   monkeypatch: object) -> None:
+    root = tmp_path / "p"
+    write(root / "data" / "a.csv", "x\n1\n")
+    write(root / "run.py", "import os\nos.makedirs('out', exist_ok=True)\n"
+                           "open('out/r.csv', 'w').write('v\\n' + os.environ.get('V', '1') + '\\n')\n")
+    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 1\n'
+                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/r.csv"]\n')
+    assert run_cli("record", "-C", root).code == 0
+    first = read_lock(root / "holotype.lock").analyses["a"].outputs["out/r.csv"].sha256
+    monkeypatch.setenv("V", "2")  # type: ignore[attr-defined]
+    again = run_cli("record", "-C", root)
+    assert again.code == 0 and "1 baseline object(s) are no longer referenced" in again.out
+    lock = read_lock(root / "holotype.lock")
+    assert [h.reason for h in lock.history] == ["holotype record", "holotype record"]
+    assert [tuple(c) for c in lock.history[-1].changes] == [("out/r.csv", first, lock.analyses["a"].outputs[
+        "out/r.csv"].sha256)]
+    listing = run_cli("tidy", "-C", root, "--format", "json")
+    [stale] = json.loads(listing.out)["findings"]
+    assert listing.code == 0 and stale["expected"] == first and "not referenced" in stale["message"]
+    from holotype.store import BaselineStore
+
+    assert BaselineStore(root).has(first)  # listing removes nothing
+    assert run_cli("tidy", "--remove", "-C", root).code == 0
+    assert not BaselineStore(root).has(first) and run_cli("check", "-C", root).code == 0
+    assert "no unreferenced baseline objects" in run_cli("tidy", "-C", root).out

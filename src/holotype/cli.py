@@ -347,6 +347,15 @@ def adopt(session: Session, names: tuple[str, ...], reason: str | None) -> Judge
     return adopt_outputs(session.project, list(names), reason or "")
 
 
+@findings_command("tidy")
+@click.option("--remove", is_flag=True, help="Remove them (without it: list what would go).")
+def tidy(session: Session, remove: bool) -> Judgement:
+    """List the baseline objects holotype.lock no longer references; --remove deletes them."""
+    from holotype.commands.tidy import tidy_store
+
+    return tidy_store(session.project, remove=remove)
+
+
 @findings_command("compare")
 @click.argument("expected", type=PATH)
 @click.argument("actual", type=PATH)

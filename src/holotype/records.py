@@ -142,7 +142,7 @@ class HistoryEntry:
     when: str
     who: str
     reason: str
-    analyses: tuple[str, ...]
+    analyses: tuple[str, ...] = ()
     changes: tuple[Change, ...] = ()
 
 

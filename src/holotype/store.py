@@ -115,6 +115,23 @@ class BaselineStore:
             raise BaselineError(f"baseline {path} does not match its SHA-256 (damaged or edited)")
         return data
 
+    def objects(self) -> dict[str, Path]:
+        """Every object in the store, by digest."""
+        found: dict[str, Path] = {}
+        if not self.folder.is_dir() or os.path.islink(self.folder):
+            return found
+        for sub in sorted(self.folder.iterdir()):
+            if len(sub.name) != 2 or not sub.is_dir() or sub.is_symlink():
+                continue
+            for obj in sorted(sub.glob("*.gz")):
+                digest = sub.name + obj.name[: -len(".gz")]
+                if len(digest) == 64 and set(digest) <= HEX and not obj.is_symlink():
+                    found[digest] = obj
+        return found
+
+    def unreferenced(self, referenced: set[str]) -> dict[str, Path]:
+        return {d: p for d, p in self.objects().items() if d not in referenced}
+
     def clean_temps(self) -> None:
         if self.folder.is_dir():
             for sub in self.folder.iterdir():

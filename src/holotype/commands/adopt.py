@@ -63,5 +63,9 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
         lock.history.append(HistoryEntry(when=timestamp(), who=current_user(), reason=reason.strip(),
                                          analyses=tuple(a.name for a in analyses), changes=tuple(changes)))
         write_lock(root / LOCK_NAME, lock)
-    note = f"adopted {len(changes)} changed output(s) of {', '.join(a.name for a in analyses)}; reason logged"
-    return Judgement("adopt", apply_policy(findings), notes=(note,), warnings=config.warnings + lock.notices)
+        referenced = {o.sha256 for rec in lock.analyses.values() for o in rec.outputs.values()}
+        stale = len(store.baselines.unreferenced(referenced))
+    notes = [f"adopted {len(changes)} changed output(s) of {', '.join(a.name for a in analyses)}; reason logged"]
+    if stale:
+        notes.append(f"{stale} baseline object(s) are no longer referenced; 'holotype tidy' lists them")
+    return Judgement("adopt", apply_policy(findings), notes=tuple(notes), warnings=config.warnings + lock.notices)

@@ -9,7 +9,7 @@ from holotype import __version__
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.numerics import libraries_from_info
 from holotype.capture.project import capture_project
-from holotype.clock import timestamp
+from holotype.clock import current_user, timestamp
 from holotype.compare.judgement import config_judgement
 from holotype.compare.runs import failure_finding, process_findings
 from holotype.config import Config, load_config
@@ -18,7 +18,7 @@ from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
-from holotype.records import AnalysisRecord, LockContents, OutputRecord
+from holotype.records import AnalysisRecord, Change, HistoryEntry, LockContents, OutputRecord
 from holotype.run.events import RunEvents
 from holotype.run.plan import make_plan
 from holotype.run.runner import Runner, make_runner
@@ -33,6 +33,13 @@ def ensure_seed(config: Config) -> tuple[Config, bool]:
     if config.source is None:
         raise HolotypeError("no holotype.toml here; run 'holotype start' first", config.root)
     return replace(config, seed=draw_seed()), True
+
+
+def _changes(old: LockContents | None, analyses: dict[str, AnalysisRecord]) -> tuple[Change, ...]:
+    """Outputs whose baseline this record replaces (or adds)."""
+    before = {out: o.sha256 for rec in (old.analyses.values() if old else ()) for out, o in rec.outputs.items()}
+    return tuple(Change(out, before.get(out, ""), o.sha256) for rec in analyses.values()
+                 for out, o in sorted(rec.outputs.items()) if before.get(out) != o.sha256)
 
 
 def _previous_lock(root: Path) -> LockContents | None:
@@ -121,10 +128,17 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             analyses=analyses,
             history=list(old.history) if old is not None else [],
         )
+        lock.history.append(HistoryEntry(when=lock.recorded, who=current_user(),
+                                         reason="holotype record" + ("" if run else " --no-run"),
+                                         analyses=tuple(sorted(analyses)), changes=_changes(old, analyses)))
         write_lock(root / LOCK_NAME, lock)
+        referenced = {o.sha256 for rec in analyses.values() for o in rec.outputs.values()}
+        stale = len(store.baselines.unreferenced(referenced))
     notes = [n for n in (seed_note,) if n]
     used = sum(p.used for p in lock.packages.values())
     notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
                  f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
-                 f"{len(lock.analyses)} analyses")
+                 f"{len(lock.analyses)} analyses; the record is in its history")
+    if stale:
+        notes.append(f"{stale} baseline object(s) are no longer referenced; 'holotype tidy' lists them")
     return Judgement("record", report_findings, notes=tuple(notes), warnings=config.warnings)
