@@ -138,3 +138,41 @@ def test_a_second_record_leaves_a_trace_and_tidy_lists_then_removes_old_baseline
     assert run_cli("tidy", "--remove", "-C", root).code == 0
     assert not BaselineStore(root).has(first) and run_cli("check", "-C", root).code == 0
     assert "no unreferenced baseline objects" in run_cli("tidy", "-C", root).out
+
+
+def adoptable(root: Path) -> Path:
+    write(root / "data" / "depths.csv", "lake,depth\nA,1.5\nB,25.0\n")
+    write(root / "run.py", "import csv, os\nrows = list(csv.DictReader(open('data/depths.csv')))\n"
+                           "os.makedirs('out', exist_ok=True)\n"
+                           "open('out/mean.csv', 'w').write('mean\\n%r\\n' % (sum(float(r['depth']) for r in rows) / len(rows)))\n")
+    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 1\n'
+                                  '[analyses.m]\ncommand = "python run.py"\noutputs = ["out/mean.csv"]\n'
+                                  'inputs = ["data/depths.csv"]\n')
+    assert run_cli("record", "-C", root).code == 0
+    return root
+
+
+def test_corrected_data_replayed_and_adopted_checks_clean_with_the_reason_once(tmp_path: Path) -> None:
+    root = adoptable(tmp_path / "p")
+    (root / "data" / "depths.csv").write_text("lake,depth\nA,1.5\nB,2.5\n")  # a transcription error fixed
+    assert run_cli("replay", "-C", root).code == 1
+    adopted = run_cli("adopt", "-C", root, "--reason", "corrected a transcription error", "--format", "json")
+    assert adopted.code == 0, adopted.err
+    assert any(f["subject"] == "data/depths.csv" and "re-recorded" in f["message"]
+               for f in json.loads(adopted.out)["findings"])
+    assert run_cli("check", "--strict", "-C", root).code == 0  # data and baselines agree again
+    assert run_cli("replay", "-C", root).code == 0
+    reasons = [h.reason for h in read_lock(root / "holotype.lock").history]
+    assert reasons.count("corrected a transcription error") == 1
+
+
+def test_adopt_refuses_an_output_edited_after_the_replay(tmp_path: Path) -> None:
+    root = adoptable(tmp_path / "p")
+    refused = run_cli("adopt", "-C", root, "--reason", "x")
+    assert refused.code == 2 and "no replay in this checkout produced" in refused.err  # never replayed
+    assert run_cli("replay", "-C", root).code == 0
+    (root / "out" / "mean.csv").write_text("mean\n0.001\n")  # a p-value "improved" by hand
+    result = run_cli("adopt", "-C", root, "--reason", "x")
+    assert result.code == 2 and "out/mean.csv" in result.err and "changed since the replay" in result.err
+    assert len(result.err.strip().splitlines()) == 1
+    assert run_cli("check", "--full", "-C", root).code == 0  # the lock and baselines were left alone

@@ -5,7 +5,9 @@ from __future__ import annotations
 import hashlib
 from pathlib import Path
 
+from holotype.capture.project import capture_project
 from holotype.clock import current_user, timestamp
+from holotype.compare.digests import compare_file_sets
 from holotype.compare.judgement import config_judgement
 from holotype.config import load_config
 from holotype.errors import HolotypeError, InputError
@@ -19,7 +21,11 @@ from holotype.store import ProjectStore
 
 
 def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement:
-    """Store each selected analysis' current output files as baselines and append a history entry."""
+    """Take the outputs of the last replay as the new baselines, with the data and code digests as they are,
+    under one history entry with the reason.
+
+    Only outputs a holotype replay in this checkout produced, and whose digests it noted, are taken; an
+    output changed since (edited by hand, written by something else) is refused with one line naming it."""
     root = Path(root)
     if not reason or not reason.strip():
         raise HolotypeError("adopt needs --reason TEXT: say why the new results replace the recorded ones")
@@ -30,8 +36,11 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
         lock = read_lock(root / LOCK_NAME)
         analyses = config.select(names)
         seed = config.seed_to_use(lock.project_seed)
+        verified = store.last_replay().get("outputs")
+        verified = verified if isinstance(verified, dict) else {}
         changes: list[Change] = []
         findings: list[Finding] = []
+        taken: list[bytes] = []
         updated = dict(lock.analyses)
         for analysis in analyses:
             outputs = {}
@@ -45,7 +54,15 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
                 except InputError as exc:
                     raise InputError(f"cannot take output of '{analysis.name}': {exc.detail}", root / out) from None
                 digest = hashlib.sha256(data).hexdigest()
-                store.baselines.put(data)
+                seen = verified.get(out)
+                if not isinstance(seen, str):
+                    raise InputError(f"no replay in this checkout produced this output of '{analysis.name}'; run "
+                                     f"'holotype replay {analysis.name}', read its findings, then adopt", root / out)
+                if seen != digest:
+                    raise InputError(f"changed since the replay that produced it (SHA-256 {seen[:12]}… then, "
+                                     f"{digest[:12]}… now); holotype adopts only outputs of a verified run: replay "
+                                     "again", root / out)
+                taken.append(data)
                 previous = old.outputs[out].sha256 if old is not None and out in old.outputs else ""
                 if previous != digest:
                     changes.append(Change(out, previous, digest))
@@ -57,6 +74,15 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
                 analysis.name, analysis.command, derive_seed(seed, analysis.name), outputs, analysis.inputs,
                 old.modules if old else (), old.libraries if old else (), old.observed if old else False,
                 analysis.timeout)
+        capture = capture_project(config, numerics=False)  # the inputs these outputs were made from
+        for data in taken:
+            store.baselines.put(data)
+        for area, old_files, new_files in (("data", lock.data, capture.data.records),
+                                           ("code", lock.code, capture.code.records)):
+            for f in compare_file_sets(area, old_files, new_files):
+                findings.append(Finding(area, f.subject, "lockfile.note",
+                                        f"re-recorded with the baselines: {f.message}"))
+        lock.data, lock.code = capture.data.records, capture.code.records
         lock.analyses = updated
         lock.project_seed = seed
         lock.judgement = config_judgement(config)  # what judged the adopted outputs, logged with the reason
