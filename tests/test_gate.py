@@ -176,3 +176,54 @@ def test_adopt_refuses_an_output_edited_after_the_replay(tmp_path: Path) -> None
     assert result.code == 2 and "out/mean.csv" in result.err and "changed since the replay" in result.err
     assert len(result.err.strip().splitlines()) == 1
     assert run_cli("check", "--full", "-C", root).code == 0  # the lock and baselines were left alone
+
+
+SEEDED = ("import os\nfrom holotype import seeds\nos.makedirs('out', exist_ok=True)\n"
+          "open('out/s.txt', 'w').write(str(seeds.seed()))\n")
+
+
+def test_holotype_is_the_instrument_not_the_analysis(tmp_path: Path) -> None:
+    root = tmp_path / "p"
+    write(root / "data" / "a.csv", "x\n1\n")
+    write(root / "run.py", SEEDED)
+    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 3\n'
+                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/s.txt"]\n')
+    assert run_cli("record", "-C", root).code == 0
+    packages = read_lock(root / "holotype.lock").packages
+    assert packages["holotype"].used  # imported directly
+    assert not any(packages[name].used for name in ("click", "rich", "pandas", "numpy") if name in packages)
+
+
+def test_holotype_seeds_works_in_an_environment_without_holotype(tmp_path: Path, wheelhouse: Path) -> None:
+    from conftest import make_venv
+    from holotype.seeds import derive_seed
+
+    venv = make_venv(tmp_path / "venv", wheelhouse)  # holotype is not installed there
+    root = tmp_path / "p"
+    write(root / "data" / "a.csv", "x\n1\n")
+    write(root / "run.py", SEEDED)
+    write(root / "holotype.toml", f'python = "{venv.python}"\ndata = ["data"]\nseed = 3\n'
+                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/s.txt"]\n')
+    result = run_cli("record", "-C", root)
+    assert result.code == 0, result.out
+    assert (root / "out" / "s.txt").read_text() == str(derive_seed(3, "a"))
+    assert "holotype" not in read_lock(root / "holotype.lock").packages
+
+
+def test_a_lazily_imported_dependency_counts_as_used(tmp_path: Path, wheelhouse: Path) -> None:
+    from conftest import build_wheel, make_venv
+
+    wheels = tmp_path / "wheels"
+    build_wheel(wheels, "lazyplot", "1.0", module_text="def draw():\n    import gamma\n    return gamma.VERSION\n")
+    venv = make_venv(tmp_path / "venv", wheelhouse)
+    venv.install("gamma==1.0", "--find-links", str(wheels), "lazyplot")
+    root = tmp_path / "p"
+    write(root / "data" / "a.csv", "x\n1\n")
+    write(root / "run.py", "import os, lazyplot\nos.makedirs('out', exist_ok=True)\n"
+                           "open('out/v.txt', 'w').write(lazyplot.draw())\n")
+    write(root / "holotype.toml", f'python = "{venv.python}"\ndata = ["data"]\nseed = 3\n'
+                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/v.txt"]\n')
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    assert not read_lock(root / "holotype.lock").packages["gamma"].used  # the static scan cannot see it
+    assert run_cli("record", "-C", root).code == 0
+    assert read_lock(root / "holotype.lock").packages["gamma"].used  # the run-time hook did

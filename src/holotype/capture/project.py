@@ -26,6 +26,7 @@ class ProjectCapture:
     code_problems: list[tuple[str, str]] = field(default_factory=list)
     unmatched_data: list[str] = field(default_factory=list)
     numerics: NumericStack | None = None
+    imported: frozenset[str] = frozenset()  # top-level modules the project's code imports (static scan)
 
 
 def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
@@ -83,4 +84,4 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
             if run is not None and run.proc.poll() is None:
                 run.stop()
     env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
-    return ProjectCapture(env, python, data, code, scan.problems, unmatched, stack)
+    return ProjectCapture(env, python, data, code, scan.problems, unmatched, stack, frozenset(scan.modules))

@@ -24,11 +24,15 @@ def declared_requirements(root: Path) -> list[str]:
     return [d for d in deps if isinstance(d, str)]
 
 
+INSTRUMENT = "holotype"
+
+
 def module_owners(env: Environment) -> dict[str, list[str]]:
     """Top-level import name -> distributions providing it."""
     owners: dict[str, list[str]] = {}
     for pkg in env.packages.values():
-        for mod in pkg.top_level:
+        # no top_level.txt (an editable install, a modern build backend): the name is the usual import name
+        for mod in pkg.top_level or (pkg.name.replace("-", "_"),):
             owners.setdefault(mod, []).append(pkg.name)
     return owners
 
@@ -59,6 +63,8 @@ def used_closure(env: Environment, imported: set[str], declared: list[str]) -> s
             continue
         seen.add((name, extras))
         used.add(name)
+        if name == INSTRUMENT:
+            continue  # holotype is the instrument, not the analysis: its own dependencies are not the analysis'
         for text in env.packages[name].requires:
             try:
                 req = Requirement(text)

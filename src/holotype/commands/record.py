@@ -9,6 +9,7 @@ from holotype import __version__
 from holotype.capture.fingerprints import HashProgress
 from holotype.capture.numerics import libraries_from_info
 from holotype.capture.project import capture_project
+from holotype.capture.usage import declared_requirements, mark_used, used_closure
 from holotype.clock import current_user, timestamp
 from holotype.compare.judgement import config_judgement
 from holotype.compare.runs import failure_finding, process_findings
@@ -104,6 +105,11 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                     a = config.analysis(name)
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
                                                     a.inputs, rec.modules, rec.libraries, rec.observed, a.timeout)
+        runtime = {m for rec in analyses.values() for m in rec.modules}
+        if runtime:  # what the analyses imported at run time is used too (a lazily imported dependency included)
+            needed = used_closure(capture.environment, set(capture.imported) | runtime, declared_requirements(root))
+            environment = mark_used(capture.environment, needed)
+            capture = replace(capture, environment=environment)
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,

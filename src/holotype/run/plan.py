@@ -43,6 +43,7 @@ def analysis_environment(config: Config, python: str, analysis: Analysis, projec
     folder = threadpoolctl_folder()
     if folder:
         env["HOLOTYPE_THREADPOOLCTL"] = folder
+    env["HOLOTYPE_SEEDS_FILE"] = str(resources.files("holotype").joinpath("seeds.py"))
     return env
 
 

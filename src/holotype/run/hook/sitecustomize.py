@@ -64,6 +64,34 @@ class _SeedingLoader:
 NUMERIC = ("numpy", "scipy", "numexpr", "sklearn", "torch")
 
 
+class _SeedsFallback:
+    """Last on sys.meta_path: when the analysis interpreter has no holotype of its own, `import holotype.seeds`
+    still works, from holotype's standard-library-only seeds module (HOLOTYPE_SEEDS_FILE). An installed
+    holotype is always found first; nothing else of holotype is offered."""
+
+    def find_spec(self, name, path=None, target=None):
+        import importlib.util
+
+        source = os.environ.get("HOLOTYPE_SEEDS_FILE")
+        if not source or not os.path.isfile(source):
+            return None
+        if name == "holotype":
+            spec = importlib.util.spec_from_loader("holotype", _EmptyPackage(), is_package=True)
+            return spec
+        if name == "holotype.seeds":
+            return importlib.util.spec_from_file_location("holotype.seeds", source)
+        return None
+
+
+class _EmptyPackage:
+    def create_module(self, spec):
+        return None
+
+    def exec_module(self, module):
+        module.__path__ = []
+        module.__doc__ = "holotype's seeds only (holotype itself is installed in another environment)"
+
+
 def _report():
     path = os.environ.get("HOLOTYPE_RUN_REPORT")
     if not path:
@@ -96,6 +124,7 @@ def _install():
     import atexit
 
     atexit.register(_report)
+    sys.meta_path.append(_SeedsFallback())
     seed = _seed_value()
     if seed is None or os.environ.get("HOLOTYPE_SEED_GLOBALS") == "0":
         return
