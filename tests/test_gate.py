@@ -227,3 +227,19 @@ def test_a_lazily_imported_dependency_counts_as_used(tmp_path: Path, wheelhouse:
     assert not read_lock(root / "holotype.lock").packages["gamma"].used  # the static scan cannot see it
     assert run_cli("record", "-C", root).code == 0
     assert read_lock(root / "holotype.lock").packages["gamma"].used  # the run-time hook did
+
+
+def test_record_no_run_with_changed_data_warns_and_check_reports_stale_baselines(tmp_path: Path) -> None:
+    root = adoptable(tmp_path / "p")
+    assert run_cli("check", "-C", root).code == 0
+    (root / "data" / "depths.csv").write_text("lake,depth\nA,1.5\nB,2.5\n")
+    result = run_cli("record", "--no-run", "-C", root, "--format", "json")
+    assert result.code == 0
+    [warned] = [f for f in json.loads(result.out)["findings"] if f["kind"] == "analysis.baselines_older"]
+    assert warned["severity"] == "warn" and warned["subject"] == "m"
+    check = run_cli("check", "-C", root, "--format", "json")
+    [stale] = [f for f in json.loads(check.out)["findings"] if f["kind"] == "analysis.stale"]
+    assert check.code == 1 and stale["subject"] == "m" and "other data" in stale["message"]
+    assert run_cli("replay", "-C", root).code == 1  # the baselines indeed come from the old data
+    assert run_cli("adopt", "-C", root, "--reason", "new depths").code == 0
+    assert run_cli("check", "-C", root).code == 0

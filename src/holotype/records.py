@@ -116,6 +116,14 @@ class OutputRecord:
     tolerance: dict[str, Any] = field(default_factory=dict)
 
 
+def inputs_digest(data: dict[str, FileRecord], inputs: tuple[str, ...]) -> str:
+    """SHA-256 over the sorted (path, digest) of an analysis' inputs: its declared inputs, else all data."""
+    import hashlib
+
+    chosen = sorted((p, r.sha256 or f"link:{r.target}") for p, r in data.items() if not inputs or p in inputs)
+    return hashlib.sha256("\n".join(f"{p}\t{d}" for p, d in chosen).encode("utf-8", "surrogateescape")).hexdigest()
+
+
 @dataclass(frozen=True)
 class AnalysisRecord:
     name: str = entry(from_key=True)
@@ -127,6 +135,7 @@ class AnalysisRecord:
     libraries: tuple[str, ...] = ()  # NativeLibrary keys of the libraries loaded in that process
     observed: bool = False  # the run-time hook reported both (else they are unknown, not empty)
     timeout: float | None = None
+    made_from: str | None = entry(default=None, digest=True)  # digest of its inputs' digests when baselines were made
 
 
 class Change(NamedTuple):

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+from dataclasses import replace
 from pathlib import Path
 
 from holotype.capture.project import capture_project
@@ -14,7 +15,7 @@ from holotype.errors import HolotypeError, InputError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
-from holotype.records import AnalysisRecord, Change, HistoryEntry, OutputRecord
+from holotype.records import AnalysisRecord, Change, HistoryEntry, OutputRecord, inputs_digest
 from holotype.safe_files import inside, read_regular
 from holotype.seeds import derive_seed
 from holotype.store import ProjectStore
@@ -83,6 +84,9 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
                 findings.append(Finding(area, f.subject, "lockfile.note",
                                         f"re-recorded with the baselines: {f.message}"))
         lock.data, lock.code = capture.data.records, capture.code.records
+        for analysis in analyses:  # the adopted outputs were made from the data as it is now
+            updated[analysis.name] = replace(updated[analysis.name],
+                                             made_from=inputs_digest(lock.data, analysis.inputs))
         lock.analyses = updated
         lock.project_seed = seed
         lock.judgement = config_judgement(config)  # what judged the adopted outputs, logged with the reason

@@ -19,7 +19,7 @@ from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
-from holotype.records import AnalysisRecord, Change, HistoryEntry, LockContents, OutputRecord
+from holotype.records import AnalysisRecord, Change, HistoryEntry, LockContents, OutputRecord, inputs_digest
 from holotype.run.events import RunEvents
 from holotype.run.plan import make_plan
 from holotype.run.runner import Runner, make_runner
@@ -95,7 +95,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                     modules=tuple(m for m in result.modules or () if m not in capture.environment.stdlib
                                   and m != "sitecustomize"),
                     libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})),
-                    observed=result.modules is not None)
+                    observed=result.modules is not None,
+                    made_from=inputs_digest(capture.data.records, analysis.inputs))
                 findings.append(Finding("analysis", result.name, "lockfile.note",
                                         f"ran in {result.seconds:.1f}s with seed {result.seed}; "
                                         f"{len(outputs)} output(s) captured"))
@@ -104,7 +105,13 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                 if any(a.name == name for a in config.analyses):
                     a = config.analysis(name)
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
-                                                    a.inputs, rec.modules, rec.libraries, rec.observed, a.timeout)
+                                                    a.inputs, rec.modules, rec.libraries, rec.observed, a.timeout,
+                                                    rec.made_from)
+                    if rec.made_from and rec.made_from != inputs_digest(capture.data.records, a.inputs):
+                        findings.append(Finding("analysis", name, "analysis.baselines_older",
+                                                "its baselines were made from other data than the data recorded "
+                                                "now (record --no-run keeps them); replay and adopt, or record "
+                                                "with a run", rec.made_from, None))
         runtime = {m for rec in analyses.values() for m in rec.modules}
         if runtime:  # what the analyses imported at run time is used too (a lazily imported dependency included)
             needed = used_closure(capture.environment, set(capture.imported) | runtime, declared_requirements(root))

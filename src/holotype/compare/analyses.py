@@ -5,7 +5,7 @@ from __future__ import annotations
 from holotype.config import Config
 from holotype.errors import BaselineError
 from holotype.findings import Finding
-from holotype.records import LockContents
+from holotype.records import LockContents, inputs_digest
 from holotype.seeds import derive_seed
 from holotype.store import BASELINE_FOLDER, STORE_FOLDER, BaselineStore
 
@@ -46,6 +46,10 @@ def compare_analyses(config: Config, lock: LockContents, names: list[str] | None
                 out.append(Finding("analysis", name, "analysis.changed",
                                    f"timeout {rec.timeout or 'none'} recorded, {a.timeout or 'none'} in the config",
                                    rec.timeout, a.timeout))
+        if rec.made_from and rec.made_from != inputs_digest(lock.data, rec.inputs):
+            out.append(Finding("analysis", name, "analysis.stale",
+                               "its baselines were made from other data than the data recorded now; replay it to "
+                               "see what the current data give, then adopt", rec.made_from, None))
         if set(a.outputs) != set(rec.outputs):
             out.append(Finding("analysis", name, "analysis.changed", "declared outputs differ from the recorded ones",
                                sorted(rec.outputs), sorted(a.outputs)))

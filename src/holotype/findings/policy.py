@@ -50,6 +50,8 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "analysis.missing": "fail",
     "analysis.changed": "warn",
     "analysis.nondeterministic": "fail",
+    "analysis.stale": "fail",  # baselines made from other data than the lock records (record --no-run after a change)
+    "analysis.baselines_older": "warn",  # said by record --no-run when it keeps baselines made from other data
     "analysis.plan": "info",
     "analysis.ran": "info",
     "analysis.left_children": "warn",  # the analysis left processes running; holotype stopped them
