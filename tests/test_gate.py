@@ -243,3 +243,27 @@ def test_record_no_run_with_changed_data_warns_and_check_reports_stale_baselines
     assert run_cli("replay", "-C", root).code == 1  # the baselines indeed come from the old data
     assert run_cli("adopt", "-C", root, "--reason", "new depths").code == 0
     assert run_cli("check", "-C", root).code == 0
+
+
+def test_diff_rev_after_adopt_is_numeric_and_does_not_fail(tmp_path: Path) -> None:
+    import os
+    import subprocess
+
+    root = adoptable(tmp_path / "p")
+
+    def git(*args: str) -> None:
+        subprocess.run(["git", *args], cwd=root, check=True, capture_output=True,
+                       env={**os.environ, "GIT_AUTHOR_NAME": "t", "GIT_AUTHOR_EMAIL": "t@example.org",
+                            "GIT_COMMITTER_NAME": "t", "GIT_COMMITTER_EMAIL": "t@example.org"})
+
+    git("init", "-q")
+    git("add", "-A")
+    git("commit", "-qm", "recorded")
+    (root / "data" / "depths.csv").write_text("lake,depth\nA,1.5\nB,2.5\n")
+    assert run_cli("replay", "-C", root).code == 1
+    assert run_cli("adopt", "-C", root, "--reason", "corrected a transcription error").code == 0
+    result = run_cli("diff", "--rev", "HEAD", "-C", root, "--format", "json")
+    assert result.code == 0, result.out
+    [adopted] = [f for f in json.loads(result.out)["findings"] if f["subject"] == "out/mean.csv"]
+    assert adopted["kind"] == "output.adopted" and "corrected a transcription error" in adopted["message"]
+    assert adopted["max_rel_err"] > 0 and "values outside tolerance" in adopted["message"]  # real figures

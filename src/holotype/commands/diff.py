@@ -11,6 +11,7 @@ from holotype.errors import HolotypeError
 from holotype.findings import Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, parse_lock, read_lock
+from holotype.store import BaselineStore
 
 
 def lock_at_revision(root: Path, rev: str) -> tuple[str, Path]:
@@ -35,8 +36,9 @@ def diff_files(a: Path, b: Path, policy_root: Path | None = None) -> Judgement:
     """Two lockfiles against each other (policy from the project at `policy_root`, if given)."""
     lock_a, lock_b = read_lock(a), read_lock(b)
     policy = load_config(policy_root, required=False).policy if policy_root else {}
+    store = BaselineStore(policy_root) if policy_root is not None else None
     findings = diff_locks(lock_a, lock_b, a.name if a.name != b.name else str(a), b.name if a.name != b.name
-                          else str(b))
+                          else str(b), store)
     return Judgement("diff", apply_policy(findings, policy), notes=(f"{a} → {b}",),
                   warnings=lock_a.notices + lock_b.notices)
 
@@ -46,6 +48,6 @@ def diff_revision(root: Path, rev: str) -> Judgement:
     text, label = lock_at_revision(root, rev)
     old = parse_lock(text, label)
     new = read_lock(root / LOCK_NAME)
-    findings = diff_locks(old, new, rev, "the working copy")
+    findings = diff_locks(old, new, rev, "the working copy", BaselineStore(root))
     return Judgement("diff", apply_policy(findings, load_config(root, required=False).policy),
                   notes=(f"{LOCK_NAME} at {rev} → working copy",), warnings=old.notices + new.notices)

@@ -63,6 +63,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.layout": "info",
     "output.baseline": "fail",
     "output.changed": "fail",
+    "output.adopted": "info",  # a baseline replaced by a logged record or adopt (diff)
     "output.unreadable": "fail",
     "output.rule": "fail",  # a rule key the output's format cannot honour (key on JSON, say): never ignored
     "output.foreign_write": "fail",  # an analysis wrote a file another analysis declares as its output
@@ -76,6 +77,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "numeric.variable": "warn",  # OPENBLAS_CORETYPE, MKL_CBWR, OMP_NUM_THREADS, …
     # notes about the lockfile and what a command did
     "lockfile.note": "info",
+    "lockfile.logged": "info",  # diff: data or code re-recorded by a logged record or adopt
 }
 
 
