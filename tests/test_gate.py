@@ -267,3 +267,32 @@ def test_diff_rev_after_adopt_is_numeric_and_does_not_fail(tmp_path: Path) -> No
     [adopted] = [f for f in json.loads(result.out)["findings"] if f["subject"] == "out/mean.csv"]
     assert adopted["kind"] == "output.adopted" and "corrected a transcription error" in adopted["message"]
     assert adopted["max_rel_err"] > 0 and "values outside tolerance" in adopted["message"]  # real figures
+
+
+def test_markers_that_call_everything_requested_are_replaced_by_what_the_project_asks_for() -> None:
+    from holotype.capture.usage import truthful_requested
+    from holotype.records import Environment, Interpreter, PackageRecord, PlatformInfo
+
+    names = ["alpha", "beta", "gamma", "delta", "epsilon", "zeta"]
+    env = Environment(Interpreter("cpython", "3.11.7"), PlatformInfo("Linux", "6", "x86_64"),
+                      {n: PackageRecord(n, "1.0", requested=True, top_level=(n,)) for n in names})
+    fixed, source = truthful_requested(env, {"alpha", "os"}, ["gamma>=1"])
+    assert source == "declared dependencies and imports"
+    assert {n for n, p in fixed.packages.items() if p.requested} == {"alpha", "gamma"}
+    some = Environment(env.interpreter, env.platform, {**env.packages, "eta": PackageRecord("eta", "1.0")})
+    assert truthful_requested(some, {"alpha"}, []) == (some, "installer")  # markers that discriminate are kept
+
+
+def test_a_change_of_installer_is_information(tmp_path: Path) -> None:
+    root = adoptable(tmp_path / "p")
+    lock = read_lock(root / "holotype.lock")
+    name, pkg = next((n, p) for n, p in sorted(lock.packages.items()) if p.installer)
+    text = (root / "holotype.lock").read_text()
+    block = text.index(f"[packages.{name}]")
+    start = text.index(f'installer = "{pkg.installer}"', block)
+    (root / "holotype.lock").write_text(text[:start] + 'installer = "another-installer"' +
+                                        text[start + len(f'installer = "{pkg.installer}"'):])
+    result = run_cli("check", "-C", root, "--format", "json")
+    [changed] = [f for f in json.loads(result.out)["findings"] if f["kind"] == "package.installer"]
+    assert changed["severity"] == "info" and changed["subject"] == name and result.code == 0
+    assert read_lock(root / "holotype.lock").requested_from in ("installer", "declared dependencies and imports")

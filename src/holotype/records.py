@@ -221,6 +221,7 @@ class LockContents:
     history: list[HistoryEntry] = entry(default_factory=list, order=10)
     numerics: NumericStack | None = entry(default=None, order=5.5)
     judgement: JudgementRecord | None = entry(default=None, order=3.5)
+    requested_from: str = entry(default="installer", order=5.2)  # or "declared dependencies and imports"
     # said once to the user when this was read from an older format; never written
     notices: tuple[str, ...] = entry(default=(), skip=True)
 

@@ -10,7 +10,7 @@ from holotype.capture.environment import ProbeRun, environment_from_probe, resol
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
 from holotype.capture.imports import scan_imports
 from holotype.capture.numerics import finish_inspection, start_inspection
-from holotype.capture.usage import declared_requirements, mark_used, used_closure
+from holotype.capture.usage import declared_requirements, mark_used, truthful_requested, used_closure
 from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex
 from holotype.config import Config
 from holotype.errors import ConfigError
@@ -27,6 +27,7 @@ class ProjectCapture:
     unmatched_data: list[str] = field(default_factory=list)
     numerics: NumericStack | None = None
     imported: frozenset[str] = frozenset()  # top-level modules the project's code imports (static scan)
+    requested_from: str = "installer"  # where each package's "requested" came from (capture/usage.py)
 
 
 def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
@@ -83,5 +84,8 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
         for run in (probe, inspection):
             if run is not None and run.proc.poll() is None:
                 run.stop()
-    env = mark_used(env, used_closure(env, scan.modules, declared_requirements(Path(config.root))))
-    return ProjectCapture(env, python, data, code, scan.problems, unmatched, stack, frozenset(scan.modules))
+    declared = declared_requirements(Path(config.root))
+    env = mark_used(env, used_closure(env, scan.modules, declared))
+    env, requested_from = truthful_requested(env, set(scan.modules), declared)
+    return ProjectCapture(env, python, data, code, scan.problems, unmatched, stack, frozenset(scan.modules),
+                          requested_from)

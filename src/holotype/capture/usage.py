@@ -85,3 +85,25 @@ def mark_used(env: Environment, used: set[str]) -> Environment:
         name: replace(pkg, used=name in used) for name, pkg in env.packages.items()
     }
     return replace(env, packages=packages)
+
+
+EVERYTHING_REQUESTED = 5  # with at least this many packages all marked requested, the markers say nothing
+
+
+def truthful_requested(env: Environment, imported: set[str], declared: list[str]) -> tuple[Environment, str]:
+    """Some installers mark every package as requested; then "requested" is derived from what the project
+    declares and imports directly. Returns the environment and which source was used."""
+    if len(env.packages) < EVERYTHING_REQUESTED or not all(p.requested for p in env.packages.values()):
+        return env, "installer"
+    from packaging.requirements import InvalidRequirement, Requirement
+    from packaging.utils import canonicalize_name
+
+    owners = module_owners(env)
+    asked = {name for mod in imported for name in owners.get(mod, []) if name != INSTRUMENT}
+    for text in declared:
+        try:
+            asked.add(canonicalize_name(Requirement(text).name))
+        except InvalidRequirement:
+            continue
+    packages = {name: replace(pkg, requested=name in asked) for name, pkg in env.packages.items()}
+    return replace(env, packages=packages), "declared dependencies and imports"

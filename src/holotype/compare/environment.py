@@ -68,6 +68,10 @@ def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord
             out.append(Finding("package", name, kind,
                                f"version {rec.version} {then}, {found.version} {now} "
                                f"({_direction(rec.version, found.version)}){role}", rec.version, found.version))
+        if rec.installer and found.installer and rec.installer != found.installer:
+            out.append(Finding("package", name, "package.installer",
+                               f"installed by {rec.installer} {then}, by {found.installer} {now}",
+                               rec.installer, found.installer))
         if found.origin != rec.origin:
             out.append(Finding("package", name, kind,
                                f"origin {rec.origin.describe()} {then}, {found.origin.describe()} {now}{role}",

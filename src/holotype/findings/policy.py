@@ -27,6 +27,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "package.used": "fail",
     "package.unrelated": "warn",
     "package.added": "warn",
+    "package.installer": "info",  # the same package, installed by another installer
     # data and code fingerprints
     "data.changed": "fail",
     "data.missing": "fail",
