@@ -128,3 +128,18 @@ def survey(tmp_path: Path) -> Path:
                                   '[analyses.mean]\ncommand = "python run.py"\noutputs = ["out/r.json"]\n')
     assert run_cli("record", "-C", root).code == 0
     return root
+
+
+def one_analysis_project(root: Path, script: str, outputs: tuple[str, ...], *, name: str = "a",
+                         data: tuple[tuple[str, str], ...] = (("data/a.csv", "x\n1\n"),), settings: str = "",
+                         analysis: str = "", python: str | os.PathLike[str] = sys.executable, seed: int = 1) -> Path:
+    """A project with data files, one analysis `run.py` and its holotype.toml (not recorded yet).
+
+    `settings` goes at the top level of the config, `analysis` into the analysis' table."""
+    for rel, text in data:
+        write(root / rel, text)
+    write(root / "run.py", script)
+    listed = ", ".join(f'"{o}"' for o in outputs)
+    write(root / "holotype.toml", f'python = "{python}"\ndata = ["data"]\nseed = {seed}\n{settings}\n'
+                                  f'[analyses.{name}]\ncommand = "python run.py"\noutputs = [{listed}]\n{analysis}')
+    return root

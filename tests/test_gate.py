@@ -6,7 +6,7 @@ import json
 import sys
 from pathlib import Path
 
-from conftest import run_cli, write
+from conftest import one_analysis_project, run_cli, write
 from holotype.lockfile import read_lock
 
 
@@ -114,12 +114,9 @@ def test_diff_shows_a_loosened_judgement_between_two_records(tmp_path: Path) -> 
 
 def test_a_second_record_leaves_a_trace_and_tidy_lists_then_removes_old_baselines(tmp_path: Path,
                                                                                    monkeypatch: object) -> None:
-    root = tmp_path / "p"
-    write(root / "data" / "a.csv", "x\n1\n")
-    write(root / "run.py", "import os\nos.makedirs('out', exist_ok=True)\n"
-                           "open('out/r.csv', 'w').write('v\\n' + os.environ.get('V', '1') + '\\n')\n")
-    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 1\n'
-                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/r.csv"]\n')
+    root = one_analysis_project(tmp_path / "p", "import os\nos.makedirs('out', exist_ok=True)\n"
+                                "open('out/r.csv', 'w').write('v\\n' + os.environ.get('V', '1') + '\\n')\n",
+                                ("out/r.csv",))
     assert run_cli("record", "-C", root).code == 0
     first = read_lock(root / "holotype.lock").analyses["a"].outputs["out/r.csv"].sha256
     monkeypatch.setenv("V", "2")  # type: ignore[attr-defined]
@@ -141,13 +138,12 @@ def test_a_second_record_leaves_a_trace_and_tidy_lists_then_removes_old_baseline
 
 
 def adoptable(root: Path) -> Path:
-    write(root / "data" / "depths.csv", "lake,depth\nA,1.5\nB,25.0\n")
-    write(root / "run.py", "import csv, os\nrows = list(csv.DictReader(open('data/depths.csv')))\n"
-                           "os.makedirs('out', exist_ok=True)\n"
-                           "open('out/mean.csv', 'w').write('mean\\n%r\\n' % (sum(float(r['depth']) for r in rows) / len(rows)))\n")
-    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 1\n'
-                                  '[analyses.m]\ncommand = "python run.py"\noutputs = ["out/mean.csv"]\n'
-                                  'inputs = ["data/depths.csv"]\n')
+    one_analysis_project(root, "import csv, os\nrows = list(csv.DictReader(open('data/depths.csv')))\n"
+                         "os.makedirs('out', exist_ok=True)\n"
+                         "open('out/mean.csv', 'w').write('mean\\n%r\\n' % (sum(float(r['depth']) for r in rows) / "
+                         "len(rows)))\n", ("out/mean.csv",), name="m",
+                         data=(("data/depths.csv", "lake,depth\nA,1.5\nB,25.0\n"),),
+                         analysis='inputs = ["data/depths.csv"]\n')
     assert run_cli("record", "-C", root).code == 0
     return root
 

@@ -22,7 +22,7 @@ from pathlib import Path
 
 import pytest
 
-from conftest import run_cli, write
+from conftest import one_analysis_project, run_cli, write
 
 MEMORY_LIMIT = 2 << 30  # address space for the holotype process under test (its imports need about 1.2 GiB)
 TIMEOUT = 120
@@ -49,13 +49,9 @@ def one_line(err: str, *phrases: str) -> None:
 
 
 def project(root: Path, script: str = "", *, outputs: tuple[str, ...] = ("out/r.csv",), extra: str = "") -> Path:
-    write(root / "data" / "a.csv", "x\n1\n2\n")
-    write(root / "run.py", script or ("import os\nos.makedirs('out', exist_ok=True)\n"
-                                      "open('out/r.csv', 'w').write('v\\n1.5\\n')\n"))
-    listed = ", ".join(f'"{o}"' for o in outputs)
-    write(root / "holotype.toml", f'python = "{sys.executable}"\ndata = ["data"]\nseed = 9\n{extra}\n'
-                                  f'[analyses.a]\ncommand = "python run.py"\noutputs = [{listed}]\n')
-    return root
+    return one_analysis_project(root, script or ("import os\nos.makedirs('out', exist_ok=True)\n"
+                                                 "open('out/r.csv', 'w').write('v\\n1.5\\n')\n"),
+                                outputs, data=(("data/a.csv", "x\n1\n2\n"),), settings=extra, seed=9)
 
 
 @pytest.fixture

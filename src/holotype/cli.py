@@ -55,6 +55,15 @@ def _console(stream: Any, no_color: bool) -> Console:
                    soft_wrap=not terminal)
 
 
+def _stdout() -> Any:
+    """Standard output, or one clear line when it is closed (`holotype check >&-`)."""
+    if sys.stdout is None:
+        from holotype.errors import HolotypeError
+
+        raise HolotypeError("standard output is closed; pass --output FILE or leave stdout open")
+    return sys.stdout
+
+
 class Session:
     """The options every command shares, the project they point at, and the consoles they imply."""
 
@@ -89,11 +98,7 @@ class Session:
     @property
     def console(self) -> Console:
         if self._console is None:
-            if sys.stdout is None:
-                from holotype.errors import HolotypeError
-
-                raise HolotypeError("standard output is closed; pass --output FILE or leave stdout open")
-            self._console = _console(sys.stdout, self.no_color)
+            self._console = _console(_stdout(), self.no_color)
         return self._console
 
     @property
@@ -113,11 +118,7 @@ class Session:
     def write_text(self, text: str) -> None:
         """Write a document (appendix, pins) to --output, or to stdout without one."""
         if self.output is None:
-            if sys.stdout is None:
-                from holotype.errors import HolotypeError
-
-                raise HolotypeError("standard output is closed; pass --output FILE")
-            sys.stdout.write(text)
+            _stdout().write(text)
             return
         from holotype.safe_files import write_output
 
@@ -142,13 +143,9 @@ class Session:
             if not self.quiet:
                 print_report(self.console, report)
         else:
-            text = render_findings(report, self.fmt)
-            if sys.stdout is None:
-                from holotype.errors import HolotypeError
-
-                raise HolotypeError("standard output is closed; pass --output FILE")
-            sys.stdout.write(text)
-            sys.stdout.flush()
+            out = _stdout()
+            out.write(render_findings(report, self.fmt))
+            out.flush()
         if report.unwritten:  # the verdict above stands, but a file it needed could not be written
             from holotype.errors import WriteError
 

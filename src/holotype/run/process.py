@@ -62,7 +62,11 @@ class LiveGroups:
 LIVE = LiveGroups()
 
 
-def _stamp(path: Path) -> tuple[int, int, int, int] | None:
+Stamp = tuple[int, int, int, int] | None
+
+
+def stamp(path: Path) -> Stamp:
+    """What tells a write apart without reading the file: inode, size, mtime, ctime (None: absent)."""
     try:
         st = os.stat(path)
     except OSError:
@@ -132,12 +136,12 @@ def _signal_group(proc: subprocess.Popen[bytes], sig: int) -> None:
             proc.terminate()
 
 
-def collect_outputs(step: Step, before: dict[str, tuple[int, int, int, int] | None], result: RunResult) -> None:
+def collect_outputs(step: Step, before: dict[str, Stamp], result: RunResult) -> None:
     """Digest each declared output the run wrote (absent or untouched since before the run: not written)."""
     for out in step.outputs:
         path = step.cwd / out
-        stamp = _stamp(path)
-        if stamp is None or stamp == before[out]:
+        now = stamp(path)
+        if now is None or now == before[out]:
             result.missing.append(out)
             continue
         if not inside(step.cwd, path):
@@ -157,7 +161,7 @@ def run_step(step: Step, log_path: Path, events: RunEvents | None = None) -> Run
     if step.split_error is not None:
         result.error = step.split_error
         return result
-    before = {out: _stamp(step.cwd / out) for out in step.outputs}
+    before = {out: stamp(step.cwd / out) for out in step.outputs}
     report = log_path.with_name(log_path.name.removesuffix(".log") + ".used.json")
     try:
         report.unlink()

@@ -8,7 +8,6 @@ completion order, and each result notes outputs of *other* analyses that changed
 from __future__ import annotations
 
 import concurrent.futures as cf
-import os
 import signal
 import threading
 import time
@@ -20,17 +19,9 @@ from typing import Any
 from holotype.records import RunResult
 from holotype.run.events import RunEvents
 from holotype.run.plan import Plan, Step
+from holotype.run.process import Stamp, stamp
 
-Stamp = tuple[int, int, int, int] | None
 Submit = Callable[[Step], "cf.Future[RunResult]"]
-
-
-def _stamp(path: Path) -> Stamp:
-    try:
-        st = os.stat(path)
-    except OSError:
-        return None
-    return (st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
 
 
 @contextmanager
@@ -72,7 +63,7 @@ def run_in_order(plan: Plan, submit: Submit, jobs: int, events: RunEvents | None
                         if events is not None:
                             events.started(step.name, index, len(plan.steps))
                         index += 1
-                        others = {out: _stamp(root / out) for out, who in owner.items() if who != step.name}
+                        others = {out: stamp(root / out) for out, who in owner.items() if who != step.name}
                         running[submit(step)] = (step, time.monotonic(), others)
                 if not running:  # cannot happen with a valid plan; never spin
                     raise RuntimeError("no step can start: the plan's order is inconsistent")
@@ -100,8 +91,8 @@ def _foreign_writes(root: Path, name: str, before: dict[str, Stamp], owner: dict
                     still_running: set[str]) -> list[tuple[str, str]]:
     """Outputs declared by another analysis that changed while `name` ran and their owner did not run."""
     found = []
-    for out, stamp in before.items():
-        if _stamp(root / out) == stamp:
+    for out, then in before.items():
+        if stamp(root / out) == then:
             continue
         who = owner[out]
         span = spans.get(who)
