@@ -19,7 +19,8 @@ from _timing import WORK
 LOOPS = 9_000_000  # about a second of pure-Python work on this machine
 BURN = f"import os\nn = 0\nfor i in range({LOOPS}):\n    n += i % 7\nos.makedirs('out', exist_ok=True)\n" \
        "open(f\"out/{os.environ['HOLOTYPE_ANALYSIS']}.txt\", 'w').write(str(n))\n"
-EMPTY = "import os\nos.makedirs('out', exist_ok=True)\nopen(f\"out/{os.environ['HOLOTYPE_ANALYSIS']}.txt\", 'w').write('0')\n"
+EMPTY = ("import os\nos.makedirs('out', exist_ok=True)\n"
+         "open(f\"out/{os.environ['HOLOTYPE_ANALYSIS']}.txt\", 'w').write('0')\n")
 
 
 def project(root: Path, script: str, count: int) -> Path:

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import base64
 import hashlib
+import json
 import os
 import subprocess
 import sys
@@ -20,10 +21,17 @@ from holotype.cli import app
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
 
 
+@pytest.fixture(scope="session")
+def _session_cache(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    return tmp_path_factory.mktemp("cache")
+
+
 @pytest.fixture(autouse=True)
-def _private_cache(tmp_path_factory: pytest.TempPathFactory, monkeypatch: pytest.MonkeyPatch) -> None:
-    # every test gets its own digest cache, so tests never see each other's entries
-    monkeypatch.setenv("HOLOTYPE_CACHE_DIR", str(tmp_path_factory.mktemp("cache")))
+def _private_cache(_session_cache: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # One digest cache for the session, never the user's: entries are keyed by file identity, so sharing them is
+    # as safe as holotype's own use across projects, and the test interpreter's ~15,000 installed files are
+    # read once, not once per test. Tests of the cache itself point HOLOTYPE_CACHE_DIR at their own folder.
+    monkeypatch.setenv("HOLOTYPE_CACHE_DIR", str(_session_cache))
     monkeypatch.delenv("NO_COLOR", raising=False)
     monkeypatch.delenv("SOURCE_DATE_EPOCH", raising=False)
 
@@ -97,6 +105,26 @@ class Venv:
 
     def install(self, *specs: str) -> None:
         self.pip("install", "--no-index", "--find-links", str(self.wheels), *specs)
+
+    @property
+    def site(self) -> Path:
+        return next((self.root / "lib").glob("python*/site-packages"))
+
+    def install_editable(self, name: str, source: Path, code_root: Path) -> None:
+        """What an installer leaves for an editable install (PEP 660, PEP 610): a .pth putting `code_root` on
+        sys.path and a .dist-info whose direct_url.json says editable, from folder `source`."""
+        dist = name.replace("-", "_")
+        info = self.site / f"{dist}-1.0.dist-info"
+        info.mkdir()
+        files = {f"_{dist}_editable.pth": f"{code_root}\n".encode(),
+                 f"{info.name}/METADATA": f"Metadata-Version: 2.1\nName: {name}\nVersion: 1.0\n".encode(),
+                 f"{info.name}/INSTALLER": b"pip\n",
+                 f"{info.name}/direct_url.json": json.dumps({"url": source.as_uri(),
+                                                             "dir_info": {"editable": True}}).encode()}
+        for rel, data in files.items():
+            (self.site / rel).write_bytes(data)
+        record = "\n".join(_record_line(rel, data) for rel, data in files.items()) + f"\n{info.name}/RECORD,,\n"
+        (info / "RECORD").write_text(record)
 
 
 def make_venv(root: Path, wheels: Path) -> Venv:

@@ -6,6 +6,8 @@ import json
 import sys
 from pathlib import Path
 
+import pytest
+
 from conftest import one_analysis_project, run_cli, write
 from holotype.lockfile import read_lock
 
@@ -292,3 +294,99 @@ def test_a_change_of_installer_is_information(tmp_path: Path) -> None:
     [changed] = [f for f in json.loads(result.out)["findings"] if f["kind"] == "package.installer"]
     assert changed["severity"] == "info" and changed["subject"] == name and result.code == 0
     assert read_lock(root / "holotype.lock").requested_from in ("installer", "declared dependencies and imports")
+
+
+def _importing(root: Path, python: Path, module: str) -> Path:
+    one_analysis_project(root, f"import os, {module}\nos.makedirs('out', exist_ok=True)\n"
+                               f"open('out/v.txt', 'w').write(repr({module}.VERSION))\n", ("out/v.txt",), python=python)
+    result = run_cli("record", "-C", root)
+    assert result.code == 0, result.out
+    return root
+
+
+@pytest.mark.parametrize("trust", ["fresh files", "cached answers"])
+def test_a_byte_changed_inside_an_installed_wheel_fails_naming_the_file(tmp_path: Path, wheelhouse: Path,
+                                                                       monkeypatch: pytest.MonkeyPatch,
+                                                                       trust: str) -> None:
+    from conftest import make_venv
+
+    if trust == "cached answers":  # files just installed are never trusted from the cache; here they are
+        monkeypatch.setattr("holotype.capture.installed.RACY_SECONDS", 0)
+        monkeypatch.setattr("holotype.capture.digest_cache.RACY_SECONDS", 0)
+    venv = make_venv(tmp_path / "venv", wheelhouse)
+    venv.install("alpha==1.0", "gamma==1.0")  # alpha requires beta; gamma is not used
+    root = _importing(tmp_path / "p", venv.python, "alpha")
+    assert run_cli("check", "--strict", "-C", root).code == 0
+    assert run_cli("check", "--strict", "-C", root).code == 0  # the second answered from the cache
+    if trust == "cached answers":
+        from holotype.capture.digest_cache import DigestCache
+
+        assert DigestCache().fact(f"installed:{venv.site / 'beta-2.0.dist-info'}")
+    module = venv.site / "beta" / "__init__.py"  # a used package's dependency
+    original = module.read_bytes()
+    module.write_bytes(original + b"THRESHOLD = 0.6\n")
+    for full in ((), ("--full",)):
+        result = run_cli("check", *full, "-C", root)
+        assert result.code == 1, result.out
+        assert "beta/__init__.py" in result.out and "FAIL" in result.out
+    module.write_bytes(original)
+    assert run_cli("check", "--strict", "-C", root).code == 0
+    other = venv.site / "gamma" / "__init__.py"
+    other.write_text("VERSION = 'patched'\n")
+    result = run_cli("check", "-C", root)
+    assert result.code == 0 and "gamma/__init__.py" in result.out  # an unrelated package warns
+
+
+def test_a_byte_changed_inside_an_editable_package_fails_naming_the_file(tmp_path: Path, wheelhouse: Path) -> None:
+    from conftest import make_venv
+
+    venv = make_venv(tmp_path / "venv", wheelhouse)
+    source = tmp_path / "helper"
+    write(source / "src" / "helper" / "__init__.py", "VERSION = 1\nTHRESHOLD = 0.5\n")
+    write(source / "README.md", "A helper.\n")
+    venv.install_editable("helper", source, source / "src")
+    root = _importing(tmp_path / "p", venv.python, "helper")
+    packages = read_lock(root / "holotype.lock").packages
+    assert packages["helper"].used and set(packages["helper"].tree) == {"src/helper/__init__.py"}
+    assert run_cli("check", "--strict", "-C", root).code == 0
+    (source / "README.md").write_text("A helper, documented.\n")  # not code: no finding
+    assert run_cli("check", "--strict", "-C", root).code == 0
+    (source / "src" / "helper" / "__init__.py").write_text("VERSION = 1\nTHRESHOLD = 0.6\n")
+    result = run_cli("check", "-C", root)
+    assert result.code == 1, result.out
+    assert "src/helper/__init__.py" in result.out and "editable" in result.out
+
+
+def test_record_says_when_installed_files_already_differ_from_the_installer(tmp_path: Path,
+                                                                          wheelhouse: Path) -> None:
+    from conftest import make_venv
+
+    venv = make_venv(tmp_path / "venv", wheelhouse)
+    venv.install("alpha==1.0")
+    (venv.site / "alpha" / "__init__.py").write_text("VERSION = 'edited by hand'\n")
+    root = tmp_path / "p"
+    one_analysis_project(root, "import alpha, os\nos.makedirs('out', exist_ok=True)\nopen('out/v.txt', 'w')\n",
+                         ("out/v.txt",), python=venv.python)
+    result = run_cli("record", "-C", root)
+    assert result.code == 0 and "alpha/__init__.py" in result.out and "installer" in result.out
+    assert read_lock(root / "holotype.lock").packages["alpha"].edited == ("alpha/__init__.py",)
+    assert run_cli("check", "--strict", "-C", root).code == 0  # recorded as found: not a change since
+
+
+def test_replay_after_a_downgrade_shows_the_drift_beside_the_outputs(tmp_path: Path, wheelhouse: Path) -> None:
+    from conftest import make_venv
+
+    venv = make_venv(tmp_path / "venv", wheelhouse)
+    venv.install("alpha==1.0", "beta==2.0", "gamma==2.0")  # alpha requires beta; gamma is not used
+    root = _importing(tmp_path / "p", venv.python, "beta")
+    venv.install("beta==1.0", "gamma==1.0")
+    result = run_cli("replay", "-C", root, "--format", "json")
+    assert result.code == 1, result.out
+    drift = [f for f in json.loads(result.out)["findings"] if f["kind"] == "environment.drift"]
+    [beta] = [f for f in drift if f["subject"] == "beta"]
+    assert "2.0 recorded, 1.0 now (downgraded)" in beta["message"] and "used by a (failed)" in beta["message"]
+    assert beta["severity"] == "info"
+    assert [f["message"] for f in drift if f["subject"] == "other packages"] == [
+        "1 other package changed that no replayed analysis uses ('holotype check' lists them)"]
+    text = run_cli("replay", "-C", root).out
+    assert "environment" in text and "beta" in text

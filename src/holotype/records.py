@@ -74,6 +74,11 @@ class PackageRecord:
     used: bool = False
     requires: tuple[str, ...] = ()
     top_level: tuple[str, ...] = entry(default=(), key="imports")
+    # the installed files' contents (capture/installed.py): one digest over the files RECORD lists
+    files: str | None = entry(default=None, digest=True)
+    edited: tuple[str, ...] = ()  # files that already differed from RECORD when recorded
+    tree: dict[str, FileRecord] = entry(default_factory=dict)  # an editable or local install's source folder
+    tree_note: str | None = None  # why that folder was not digested
 
 
 def _file_kind(table: dict[str, Any]) -> str:
@@ -203,6 +208,8 @@ class Environment:
     packages: dict[str, PackageRecord]
     stdlib: frozenset[str] = frozenset()
     markers: dict[str, str] = field(default_factory=dict)
+    locations: dict[str, str] = field(default_factory=dict)  # package -> its .dist-info folder (never recorded)
+    sources: dict[str, str] = field(default_factory=dict)  # package -> the raw URL of a local install's folder
 
 
 @dataclass

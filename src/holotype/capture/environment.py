@@ -212,6 +212,8 @@ def _environment(doc: dict[str, Any], root: Path | None) -> Environment:
         libc=pf.get("libc"), libc_version=pf.get("libc_version"),
     )
     packages: dict[str, PackageRecord] = {}
+    locations: dict[str, str] = {}
+    sources: dict[str, str] = {}
     for dist in doc["distributions"]:
         name = canonicalize_name(dist["name"])
         if name in packages:
@@ -225,12 +227,19 @@ def _environment(doc: dict[str, Any], root: Path | None) -> Environment:
             requires=tuple(dist.get("requires") or ()),
             top_level=tuple(dist.get("top_level") or ()),
         )
+        if isinstance(dist.get("location"), str):
+            locations[name] = dist["location"]
+        url = (dist.get("direct_url") or {}).get("url") if isinstance(dist.get("direct_url"), dict) else None
+        if isinstance(url, str) and url.startswith("file://"):
+            sources[name] = url
     return Environment(
         interpreter=interpreter,
         platform=platform,
         packages=packages,
         stdlib=frozenset(doc.get("stdlib") or ()),
         markers={k: str(v) for k, v in (doc.get("markers") or {}).items()},
+        locations=locations,
+        sources=sources,
     )
 
 

@@ -138,6 +138,7 @@ def _distributions():
                 "requires": requires,
                 "top_level": _top_level_names(dist),
                 "direct_url": origin,
+                "location": str(getattr(dist, "_path", "") or "") or None,  # the .dist-info folder
             }
         )
     return result

@@ -9,6 +9,7 @@ from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
 from holotype.capture.imports import scan_imports
+from holotype.capture.installed import digest_installed, with_installed
 from holotype.capture.numerics import finish_inspection, start_inspection
 from holotype.capture.usage import declared_requirements, mark_used, truthful_requested, used_closure
 from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex
@@ -47,7 +48,7 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
                     raise ConfigError(f"'{key}' entry '{pattern}' takes in '{out}', an output of analysis '{name}'; "
                                       "an output cannot also be an input the record fingerprints (narrow the "
                                       "pattern, or move the output)", config.source)
-    walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source)
+    walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, frozenset(outputs))
     data, unmatched = walker.collect(config.data)
     if config.code is not None:
         code, _ = walker.collect(config.code)
@@ -75,6 +76,9 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
             data = fingerprint_files(data_files, cache=cache, progress=progress)
             code = fingerprint_files(code_files, cache=cache)
             env = environment_from_probe(probe.result(), config.root, python)
+            outputs = {out for a in config.analyses for out in a.outputs}
+            env = with_installed(env, digest_installed(env, Path(config.root), cache=cache, excludes=config.exclude,
+                                                       skip=set(data_files) | outputs))
             if inspection is not None:
                 stack = finish_inspection(inspection, python, env, config.threads, cache)
         finally:

@@ -97,8 +97,9 @@ class ProjectWalker:
     """Walks the project tree with os.scandir; one pass, no per-file subprocess, links not followed."""
 
     def __init__(self, root: Path, excludes: tuple[str, ...] = (), allow_outside: bool = False,
-                 config_path: Path | None = None) -> None:
+                 config_path: Path | None = None, outputs: frozenset[str] = frozenset()) -> None:
         self.root = Path(root)
+        self.outputs = outputs  # declared outputs: never inputs, so never looked at (a link among them included)
         self.root_real = os.path.realpath(self.root)
         self.excludes = excludes
         self.allow_outside = allow_outside
@@ -129,7 +130,7 @@ class ProjectWalker:
             for entry in entries:
                 full = entry.path
                 rel = prefix + entry.name
-                if self.excludes and is_excluded(rel, self.excludes):
+                if (self.excludes and is_excluded(rel, self.excludes)) or rel in self.outputs:
                     continue
                 if not entry.name.isascii():
                     _utf8_name(rel)

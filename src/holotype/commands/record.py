@@ -117,6 +117,12 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             needed = used_closure(capture.environment, set(capture.imported) | runtime, declared_requirements(root))
             environment = mark_used(capture.environment, needed)
             capture = replace(capture, environment=environment)
+        for name, pkg in capture.environment.packages.items():
+            if pkg.edited:
+                shown = ", ".join(pkg.edited[:5]) + (f" and {len(pkg.edited) - 5} more" if len(pkg.edited) > 5 else "")
+                findings.append(Finding("package", name, "package.edited",
+                                        f"{len(pkg.edited)} installed file(s) already differ from what the installer "
+                                        f"wrote: {shown}; recorded as found (reinstall it for a clean record)"))
         report_findings = apply_policy(findings, config.policy)
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,

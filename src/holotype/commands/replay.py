@@ -8,10 +8,11 @@ from dataclasses import replace
 from pathlib import Path
 
 from holotype.capture.environment import resolve_python
-from holotype.capture.project import capture_project
+from holotype.capture.project import ProjectCapture, capture_project
 from holotype.clock import timestamp
 from holotype.compare.analyses import compare_analyses, compare_project_seed
 from holotype.compare.causes import Now, candidate_causes
+from holotype.compare.drift import environment_drift
 from holotype.compare.runs import (
     compare_two_runs,
     compare_with_baselines,
@@ -20,7 +21,7 @@ from holotype.compare.runs import (
     ran_finding,
 )
 from holotype.config import Config, load_config
-from holotype.errors import WriteError
+from holotype.errors import HolotypeError, WriteError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
@@ -84,10 +85,9 @@ def _not_exact(f: Finding) -> bool:
         f.kind == "output.match" and f.message != "identical bytes")
 
 
-def _with_candidates(findings: list[Finding], moved: list[tuple[str, Finding]], config: Config,
-                     lock: LockContents, python: str | None, *, project_seed: int) -> list[Finding]:
-    """Attach to each moved output the recorded differences that can move its analysis (captured once, now)."""
-    capture = capture_project(config, python_override=python)
+def _with_candidates(findings: list[Finding], moved: list[tuple[str, Finding]], capture: ProjectCapture,
+                     lock: LockContents, *, project_seed: int) -> list[Finding]:
+    """Attach to each moved output the recorded differences that can move its analysis."""
     now = Now(capture.environment, capture.data.records, capture.code.records, capture.numerics, project_seed)
     causes = {name: tuple(candidate_causes(name, lock, now)) for name in {n for n, _ in moved}}
     by_finding = {id(f): causes[name] for name, f in moved}
@@ -131,8 +131,19 @@ def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, s
             findings += judged
             moved += [(result.name, f) for f in judged if _not_exact(f)]
         findings += unstable.values()
-    if moved:
-        findings = _with_candidates(findings, moved, config, lock, python, project_seed=plan.project_seed)
+    failed = [r.name for r in results if not r.ok]
+    capture: ProjectCapture | None = None
+    if moved or failed:  # only then: a replay that reproduces byte for byte costs no capture
+        try:
+            capture = capture_project(config, python_override=python)  # the environment now
+        except HolotypeError as exc:  # the outputs' verdict stands; say what could not be compared
+            warnings += (f"the environment was not compared with the record: {exc.message}",)
+    if capture is not None:
+        if moved:
+            findings = _with_candidates(findings, moved, capture, lock, project_seed=plan.project_seed)
+        failing = set(failed) | {name for name, f in moved if f.kind != "output.match"}
+        findings += environment_drift(lock, capture.environment, capture.numerics, (r.name for r in results),
+                                      failing)
     report = Judgement("replay", apply_policy(findings, config.policy), warnings=warnings)
     try:
         store.save_last_replay({"when": timestamp(), "analyses": selected,

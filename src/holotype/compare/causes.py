@@ -31,7 +31,7 @@ class Now:
     project_seed: int
 
 
-def _used_distributions(analysis: AnalysisRecord, lock: LockContents) -> tuple[list[str], list[str]]:
+def used_distributions(analysis: AnalysisRecord, lock: LockContents) -> tuple[list[str], list[str]]:
     """(imported by the analysis itself, the rest it used): from the run-time modules, else the lock's `used`."""
     if analysis.observed:
         provides: dict[str, str] = {}
@@ -78,7 +78,7 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
         out.append(f"seed: project seed {lock.project_seed} recorded, {now.project_seed} used")
     for f in compare_file_sets("code", lock.code, now.code):
         out.append(f"code {f.subject}: {f.message}")
-    direct, indirect = _used_distributions(analysis, lock)
+    direct, indirect = used_distributions(analysis, lock)
     for group, how in ((direct, "imported by the analysis"), (indirect, "used by what it imports")):
         for dist in group:
             then, found = lock.packages[dist], now.environment.packages.get(dist)
@@ -89,6 +89,12 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
             elif found.origin != then.origin:
                 out.append(f"package {dist} {then.version} ({how}): origin {then.origin.describe()} → "
                            f"{found.origin.describe()}")
+            elif (then.files and found.files and then.files != found.files) or then.tree != found.tree:
+                edited = [rel for rel in found.edited if rel not in then.edited] or [
+                    rel for rel in sorted(then.tree.keys() | found.tree.keys())
+                    if then.tree.get(rel) != found.tree.get(rel)]
+                out.append(f"package {dist} {then.version} ({how}): its files changed"
+                           + (f" ({', '.join(edited[:3])}{', …' if len(edited) > 3 else ''})" if edited else ""))
     old_stack, new_stack = lock.numerics, now.numerics
     if old_stack is not None and new_stack is not None:
         loaded = set(analysis.libraries) if analysis.observed else {lib.key for lib in old_stack.libraries}

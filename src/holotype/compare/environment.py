@@ -49,6 +49,42 @@ def _direction(old: str, new: str) -> str:
     return "upgraded" if b > a else "downgraded" if b < a else "changed"
 
 
+def _names(paths: list[str], limit: int = 5) -> str:
+    shown = ", ".join(paths[:limit])
+    return shown + (f" and {len(paths) - limit} more" if len(paths) > limit else "")
+
+
+def _contents(rec: PackageRecord, found: PackageRecord, kind: str, role: str, then: str, now: str) -> list[Finding]:
+    """The same version with other contents: installed files edited, or a local install's source folder."""
+    out: list[Finding] = []
+    name = rec.name
+    if rec.files and found.files and rec.files != found.files:
+        edited = [rel for rel in found.edited if rel not in rec.edited]
+        if edited:
+            text = (f"{len(edited)} installed file{'s' if len(edited) != 1 else ''} changed since {then} "
+                    f"(they differ from what the installer wrote): {_names(edited)}{role}")
+        else:
+            text = (f"installed files differ from those {then}, at the same version {rec.version} "
+                    f"(reinstalled from another build?){role}")
+        out.append(Finding("package", name, kind, text, rec.files[:12], found.files[:12]))
+    if (rec.tree or found.tree) and rec.tree != found.tree:
+        changed = sorted(rel for rel in rec.tree.keys() & found.tree.keys() if rec.tree[rel] != found.tree[rel])
+        added = sorted(found.tree.keys() - rec.tree.keys())
+        removed = sorted(rec.tree.keys() - found.tree.keys())
+        parts = [f"{word} {_names(paths)}" for word, paths in (("modified", changed), ("added", added),
+                                                                ("removed", removed)) if paths]
+        if found.origin.kind == "editable":
+            text = f"the source folder of this editable install (the code it runs) changed: {'; '.join(parts)}{role}"
+            out.append(Finding("package", name, kind, text, f"{len(rec.tree)} files {then}",
+                               f"{len(found.tree)} files {now}"))
+        else:
+            text = (f"the folder this package was installed from changed: {'; '.join(parts)} "
+                    "(the installed copy did not; a reinstall would give other code)")
+            out.append(Finding("package", name, "package.source_folder", text, f"{len(rec.tree)} files {then}",
+                               f"{len(found.tree)} files {now}"))
+    return out
+
+
 def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord],
                      then: str = "recorded", now: str = "found", gone: str = "not installed") -> list[Finding]:
     """Drift of every recorded package; its kind depends on whether the project uses it (then or now:
@@ -68,6 +104,8 @@ def compare_packages(old: dict[str, PackageRecord], new: dict[str, PackageRecord
             out.append(Finding("package", name, kind,
                                f"version {rec.version} {then}, {found.version} {now} "
                                f"({_direction(rec.version, found.version)}){role}", rec.version, found.version))
+        else:
+            out += _contents(rec, found, kind, role, then, now)
         if rec.installer and found.installer and rec.installer != found.installer:
             out.append(Finding("package", name, "package.installer",
                                f"installed by {rec.installer} {then}, by {found.installer} {now}",

@@ -10,7 +10,7 @@ from holotype.redaction import redact, secret_values
 
 MAX_LISTED = 50  # list values (columns, paths) kept in a finding beyond which only the count is said
 AREAS = ("interpreter", "platform", "package", "numeric", "data", "code", "seed", "judgement", "analysis", "output",
-         "lockfile")
+         "environment", "lockfile")
 
 
 @dataclass(frozen=True)

@@ -28,6 +28,8 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "package.unrelated": "warn",
     "package.added": "warn",
     "package.installer": "info",  # the same package, installed by another installer
+    "package.edited": "warn",  # at record: installed files already differ from the installer's RECORD
+    "package.source_folder": "warn",  # the folder a non-editable local install was built from changed
     # data and code fingerprints
     "data.changed": "fail",
     "data.missing": "fail",
@@ -54,6 +56,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "analysis.stale": "fail",  # baselines made from other data than the lock records (record --no-run after a change)
     "analysis.baselines_older": "warn",  # said by record --no-run when it keeps baselines made from other data
     "analysis.plan": "info",
+    "environment.drift": "info",  # replay: what changed since the record that the replayed analyses use
     "analysis.ran": "info",
     "analysis.left_children": "warn",  # the analysis left processes running; holotype stopped them
     "output.mismatch": "fail",
