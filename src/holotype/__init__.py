@@ -47,7 +47,8 @@ def __getattr__(name: str) -> Any:
 
 def compare_results(expected: str | Path, actual: str | Path, *, atol: float | None = None, rtol: float | None = None,
             ulps: int | None = None, digits: float | None = None, key: list[str] | None = None,
-            sign_free: list[str] | None = None, ignore: list[str] | None = None) -> Judgement:
+            sign_free: list[str] | None = None, ignore: list[str] | None = None,
+            skip_lines: list[str] | None = None, mask: list[str] | None = None) -> Judgement:
     """Compare two result files, or two folders paired by relative path, within the given tolerances.
 
     With no numeric criterion the project default applies (rtol 1e-9, atol 1e-12)."""
@@ -55,7 +56,7 @@ def compare_results(expected: str | Path, actual: str | Path, *, atol: float | N
 
     from holotype.commands.compare import compare_inputs, rulebook_from_flags
 
-    rules = rulebook_from_flags(atol, rtol, ulps, digits, key, sign_free, ignore)
+    rules = rulebook_from_flags(atol, rtol, ulps, digits, key, sign_free, ignore, skip_lines=skip_lines, mask=mask)
     return compare_inputs(Path(expected), Path(actual), rules)
 
 

@@ -364,13 +364,18 @@ def tidy(session: Session, remove: bool) -> Judgement:
 @click.option("--sign-free", "sign_free", multiple=True, metavar="COLUMN",
               help="Columns (globs) that may flip sign as a whole (repeatable).")
 @click.option("--ignore", multiple=True, help="Skip these columns or JSON paths (globs).")
+@click.option("--skip-lines", "skip_lines", multiple=True, metavar="REGEX",
+              help="Text outputs: leave out lines matching this regular expression (repeatable).")
+@click.option("--mask", multiple=True, metavar="REGEX",
+              help="Text outputs: do not compare text matching this regular expression (repeatable).")
 def compare(session: Session, expected: Path, actual: Path, atol: float | None, rtol: float | None,
             ulps: int | None, digits: float | None, key: tuple[str, ...], sign_free: tuple[str, ...],
-            ignore: tuple[str, ...]) -> Judgement:
+            ignore: tuple[str, ...], skip_lines: tuple[str, ...], mask: tuple[str, ...]) -> Judgement:
     """Compare two result files, or two folders paired by relative path, within tolerances."""
     from holotype.commands.compare import compare_inputs, rulebook_from_flags
 
-    rules = rulebook_from_flags(atol, rtol, ulps, digits, list(key), list(sign_free), list(ignore))
+    rules = rulebook_from_flags(atol, rtol, ulps, digits, list(key), list(sign_free), list(ignore),
+                                skip_lines=list(skip_lines), mask=list(mask))
     base = session.given if session.given is not None else Path(".")
     return compare_inputs(base / expected, base / actual, rules)
 

@@ -28,3 +28,9 @@ def current_user() -> str:
         return getpass.getuser()
     except (KeyError, OSError):
         return "unknown"
+
+
+def epoch_now() -> int:
+    """Whole seconds since 1970 now, or SOURCE_DATE_EPOCH when set: what a record's analyses run with."""
+    stamp = timestamp()  # validates SOURCE_DATE_EPOCH
+    return int(datetime.strptime(stamp, "%Y-%m-%dT%H:%M:%SZ").replace(tzinfo=UTC).timestamp())

@@ -5,6 +5,7 @@ from __future__ import annotations
 import difflib
 import math
 import re
+import shlex
 import tomllib
 from dataclasses import dataclass, field
 from pathlib import Path, PurePosixPath
@@ -20,7 +21,8 @@ TOP_KEYS = (
     "python", "data", "code", "exclude", "seed", "threads", "seed_globals",
     "tolerance", "rules", "analyses", "policy", "allow_outside", "cluster",
 )
-ANALYSIS_KEYS = ("command", "outputs", "inputs", "timeout")
+ANALYSIS_KEYS = ("command", "notebook", "outputs", "inputs", "timeout")
+NOTEBOOK_RUNNER = "python -m holotype_notebook"  # run/hook/holotype_notebook.py, on every analysis' PYTHONPATH
 MAX_SEED = 2**63 - 1
 _NAME = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]*$")
 
@@ -212,14 +214,31 @@ def _analysis(name: str, table: Any, v: _Validator) -> Analysis:
     if not isinstance(table, dict):
         raise v.fail(f"'{where}' should be a table")
     v.unknown(table, ANALYSIS_KEYS, where + ".")
-    command = table.get("command")
-    if not isinstance(command, str) or not command.strip():
-        raise v.fail(f"'{where}.command' should be the command to run, e.g. \"python analysis/{name}.py\"")
-    if "\x00" in command:
-        raise v.fail(f"'{where}.command' contains a NUL byte")
     outputs = v.paths(table, "outputs", where + ".")
     if not outputs:
         raise v.fail(f"'{where}.outputs' should list at least one output file")
+    notebook = table.get("notebook")
+    if notebook is not None:
+        if "command" in table:
+            raise v.fail(f"'{where}' sets both 'command' and 'notebook'; an analysis is one or the other")
+        if not isinstance(notebook, str) or not notebook.endswith(".ipynb"):
+            raise v.fail(f"'{where}.notebook' should be the path of a .ipynb notebook to execute")
+        [notebook] = v.paths({"notebook": [notebook]}, "notebook", where + ".")
+        executed = [o for o in outputs if o.endswith(".ipynb")]
+        if not executed:
+            raise v.fail(f"'{where}.outputs' should name where the executed notebook goes (a .ipynb path)")
+        if executed[0] == notebook:
+            raise v.fail(f"'{where}': the executed notebook cannot replace '{notebook}' itself; name another path "
+                         "in 'outputs'")
+        command = f"{NOTEBOOK_RUNNER} {shlex.quote(notebook)} {shlex.quote(executed[0])}"
+    else:
+        given = table.get("command")
+        if not isinstance(given, str) or not given.strip():
+            raise v.fail(f"'{where}.command' should be the command to run, e.g. \"python analysis/{name}.py\", "
+                         f"or set 'notebook' to a .ipynb to execute")
+        command = given
+    if "\x00" in command:
+        raise v.fail(f"'{where}.command' contains a NUL byte")
     timeout = table.get("timeout")
     if timeout is not None:
         if isinstance(timeout, bool) or not isinstance(timeout, (int, float)) or math.isnan(timeout) \

@@ -222,6 +222,8 @@ class LockContents:
     recorded: str = entry(default="", order=2)
     holotype: str = entry(default="", order=1)
     project_seed: int | None = entry(default=None, order=3)
+    # SOURCE_DATE_EPOCH the analyses ran with (seconds since 1970): replay gives them the same
+    source_date_epoch: int | None = entry(default=None, order=3.2)
     data: dict[str, FileRecord] = entry(default_factory=dict, order=7)
     code: dict[str, FileRecord] = entry(default_factory=dict, order=8)
     analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)

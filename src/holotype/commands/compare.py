@@ -14,7 +14,8 @@ from holotype.tolerance import Rule, RuleBook, default_tolerance, parse_rule_set
 
 def rulebook_from_flags(atol: float | None = None, rtol: float | None = None, ulps: int | None = None,
                         digits: float | None = None, key: list[str] | None = None,
-                        sign_free: list[str] | None = None, ignore: list[str] | None = None) -> RuleBook:
+                        sign_free: list[str] | None = None, ignore: list[str] | None = None, *,
+                        skip_lines: list[str] | None = None, mask: list[str] | None = None) -> RuleBook:
     """The same rules the config builds, from compare's flags. No numeric flag: the project default."""
     settings: dict[str, Any] = {k: v for k, v in (("atol", atol), ("rtol", rtol), ("ulps", ulps),
                                                     ("digits", digits)) if v is not None}
@@ -22,6 +23,10 @@ def rulebook_from_flags(atol: float | None = None, rtol: float | None = None, ul
         settings["key"] = list(key)
     if ignore:
         settings["ignore"] = list(ignore)
+    if skip_lines:
+        settings["skip_lines"] = list(skip_lines)
+    if mask:
+        settings["mask"] = list(mask)
     try:
         parsed = parse_rule_settings(settings, "--")
     except ToleranceError as exc:

@@ -10,7 +10,7 @@ from holotype.capture.fingerprints import HashProgress
 from holotype.capture.numerics import libraries_from_info
 from holotype.capture.project import capture_project
 from holotype.capture.usage import declared_requirements, mark_used, used_closure
-from holotype.clock import current_user, timestamp
+from holotype.clock import current_user, epoch_now, timestamp
 from holotype.compare.judgement import config_judgement
 from holotype.compare.runs import failure_finding, process_findings
 from holotype.config import Config, load_config
@@ -69,10 +69,12 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             raise ConfigError(f"data pattern '{capture.unmatched_data[0]}' matches no file; fix 'data' or add the "
                               "files", config.source)
         old = _previous_lock(root)
+        # the date tools stamp into outputs: new with a run, kept with the baselines by --no-run
+        epoch = epoch_now() if run or old is None else old.source_date_epoch
         analyses: dict[str, AnalysisRecord] = {}
         pending: list[bytes] = []
         if run:
-            plan = make_plan(config, capture.python, config.select(None), config.seed)
+            plan = make_plan(config, capture.python, config.select(None), config.seed, epoch)
             runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
                                            digest_file=config.source.name if config.source else LOCK_NAME)
             try:
@@ -143,6 +145,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             recorded=timestamp(),
             holotype=__version__,
             project_seed=config.seed,
+            source_date_epoch=epoch,
             data=capture.data.records,
             code=capture.code.records,
             analyses=analyses,

@@ -60,7 +60,7 @@ def replay_project(root: Path, names: list[str] | None = None, *, twice: bool = 
     analyses = config.select(names)
     interpreter, how = resolve_python(config.python, root, python)
     project_seed = config.seed_to_use(lock.project_seed)
-    plan = make_plan(config, interpreter, analyses, project_seed)
+    plan = make_plan(config, interpreter, analyses, project_seed, lock.source_date_epoch)
     selected = [a.name for a in analyses]
     # a changed command or seed is shown before anything runs, in a dry run too
     findings = compare_project_seed(config, lock, ran_with=project_seed)

@@ -12,6 +12,7 @@ from holotype.compare.cells import MISSING, NUMBER, TEXT, column_arrays
 from holotype.compare.numbers import judge
 from holotype.compare.outcome import Outcome
 from holotype.compare.tally import Tally
+from holotype.compare.tokens import embedded_numbers
 from holotype.phrasing import clip, listed
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -42,16 +43,38 @@ class ColumnJudge:
         idx = np.where(both_num)[0]
         if idx.size:
             self.numeric(e_num[idx], a_num[idx], lambda i: where(int(idx[i])))
+        inside_e: list[float] = []
+        inside_a: list[float] = []
+        inside_where: list[str] = []
         for i in np.where(~both_num)[0].tolist():
             if ek[i] == MISSING and ak[i] == MISSING:
                 equal = True
             elif ek[i] == TEXT and ak[i] == TEXT:
-                equal = str(e_obj[i]) == str(a_obj[i])  # type: ignore[index]
+                e_text, a_text = str(e_obj[i]), str(a_obj[i])  # type: ignore[index]
+                equal = e_text == a_text
+                pair = None if equal else embedded_numbers(e_text, a_text)
+                if pair is not None:  # the same text around numbers ('143.7:350.5', '12.3 (0.4)'): numbers
+                    inside_e += pair[0]
+                    inside_a += pair[1]
+                    inside_where += [f"{where(i)}, number {k} in the cell" for k in range(1, len(pair[0]) + 1)]
+                    continue
             else:
                 equal = False
             e_val = "(missing)" if ek[i] == MISSING else (e_obj[i] if e_obj is not None else e_num[i])
             a_val = "(missing)" if ak[i] == MISSING else (a_obj[i] if a_obj is not None else a_num[i])
             self.exact(equal, where(i), e_val, a_val)
+        if inside_e:
+            self.numeric(np.array(inside_e), np.array(inside_a), inside_where.__getitem__)
+
+    def text(self, expected: str, actual: str, where: str) -> None:
+        """Two strings (a JSON string, say): equal, or the same text around numbers compared numerically."""
+        pair = None if expected == actual else embedded_numbers(expected, actual)
+        if pair is None:
+            self.exact(expected == actual, where, expected, actual)
+            return
+        count = len(pair[0])
+        self.numeric(np.array(pair[0]), np.array(pair[1]),
+                     lambda k: f"{where}, number {k + 1} in the string" if count > 1 else where)
 
     def exact(self, equal: bool, where: str, expected: Any, actual: Any) -> None:
         """One cell compared exactly (text, missing, or kinds that differ); sign plays no part."""

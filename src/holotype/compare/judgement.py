@@ -10,7 +10,7 @@ from holotype.config import Config
 from holotype.findings import Finding
 from holotype.findings.policy import DEFAULT_SEVERITY, SEVERITY_ORDER
 from holotype.records import JudgementRecord, RuleRecord
-from holotype.tolerance import NUMERIC_KEYS, Rule, RuleBook, Tolerance, default_tolerance
+from holotype.tolerance import IMAGE_DEFAULTS, NUMERIC_KEYS, Rule, RuleBook, Tolerance, default_tolerance
 
 
 def judgement_of(default: Tolerance, rules: tuple[Rule, ...], threads: int | None, seed_globals: bool,
@@ -53,11 +53,29 @@ def _direction(a: Tolerance, b: Tolerance) -> tuple[list[str], list[str]]:
         looser.append("sign_free added")
     elif a.sign_free and not b.sign_free:
         tighter.append("sign_free removed")
-    added, removed = set(b.ignore) - set(a.ignore), set(a.ignore) - set(b.ignore)
-    if added:
-        looser.append(f"ignore adds {', '.join(sorted(added))}")
-    if removed:
-        tighter.append(f"ignore drops {', '.join(sorted(removed))}")
+    for key in ("ignore", "skip_lines", "mask"):  # each entry leaves more out of the comparison
+        before, after = set(getattr(a, key)), set(getattr(b, key))
+        if after - before:
+            looser.append(f"{key} adds {', '.join(sorted(after - before))}")
+        if before - after:
+            tighter.append(f"{key} drops {', '.join(sorted(before - after))}")
+    if (a.whitespace == "exact") != (b.whitespace == "exact"):
+        (tighter if b.whitespace == "exact" else looser).append(
+            f"whitespace {a.whitespace or 'any'} → {b.whitespace or 'any'}")
+    for key, default in (("channel_delta", IMAGE_DEFAULTS[0]), ("pixel_share", IMAGE_DEFAULTS[1])):
+        x, y = getattr(a, key), getattr(b, key)
+        x, y = default if x is None else x, default if y is None else y
+        if y != x:
+            (looser if y > x else tighter).append(f"{key} {x:g} → {y:g}")
+    if b.record_only != a.record_only:
+        (looser if b.record_only else tighter).append(f"record_only {'added' if b.record_only else 'removed'}")
+    rank = {"fail": 0, "warn": 1, "info": 2}
+    x_sev, y_sev = rank[a.severity or "fail"], rank[b.severity or "fail"]
+    if x_sev != y_sev:
+        (looser if y_sev > x_sev else tighter).append(f"severity {a.severity or 'fail'} → {b.severity or 'fail'}")
+    if a.format != b.format:  # read another way: may let more through, unless it is now compared by its bytes
+        (tighter if b.format == "bytes" else looser).append(f"format {a.format or 'by suffix'} → "
+                                                            f"{b.format or 'by suffix'}")
     return looser, tighter
 
 

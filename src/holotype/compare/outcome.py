@@ -23,6 +23,8 @@ class Outcome:
     tallies: list[Tally] = field(default_factory=list)
     problems: list[Problem] = field(default_factory=list)
     notes: list[str] = field(default_factory=list)
+    hints: list[str] = field(default_factory=list)  # added to a failing finding: what would explain or skip it
+    picture: bytes | None = None  # a PNG showing where an image differs, for the replay to keep beside its log
 
     def problem(self, kind: str, message: str, expected: Any = None, actual: Any = None) -> None:
         self.problems.append(Problem(kind, message, expected, actual))

@@ -2,11 +2,14 @@
 
 from __future__ import annotations
 
+import re
+from collections.abc import Callable
 from pathlib import Path
 
+from holotype.atomic import write_atomic
 from holotype.compare.outputs import compare_or_unreadable
 from holotype.compare.source import Source
-from holotype.errors import BaselineError
+from holotype.errors import BaselineError, HolotypeError
 from holotype.findings import Finding
 from holotype.records import AnalysisRecord, RunResult
 from holotype.store import BaselineStore
@@ -50,6 +53,21 @@ def ran_finding(result: RunResult) -> Finding:
     return Finding("analysis", result.name, "analysis.ran", f"ran in {result.seconds:.1f}s with seed {result.seed}")
 
 
+def picture_keeper(result: RunResult) -> Callable[[str, bytes], str]:
+    """Where a difference picture of one of `result`'s outputs goes: beside the analysis' log."""
+
+    def keep(output: str, picture: bytes) -> str:
+        safe = re.sub(r"[^A-Za-z0-9._-]+", "_", output)
+        path = result.log.with_name(f"{result.log.stem}.{safe}.difference.png")
+        try:
+            write_atomic(path, picture)
+        except (OSError, HolotypeError) as exc:
+            return f"(not written: {getattr(exc, 'strerror', None) or exc})"
+        return str(path)
+
+    return keep
+
+
 def compare_with_baselines(record: AnalysisRecord, result: RunResult, store: BaselineStore,
                            rules: RuleBook) -> list[Finding]:
     """Each fresh output against its baseline, through the engine and the project's rules."""
@@ -66,7 +84,7 @@ def compare_with_baselines(record: AnalysisRecord, result: RunResult, store: Bas
             continue
         expected = Source.from_bytes(baseline, out, f"baseline of {out}")
         actual = Source.from_bytes(produced.data, out, out)
-        findings += compare_or_unreadable(out, expected, actual, rules)
+        findings += compare_or_unreadable(out, expected, actual, rules, keep=picture_keeper(result))
     for out in result.outputs:
         if out not in record.outputs:
             findings.append(Finding("output", out, "output.extra", "declared now, no baseline recorded; "

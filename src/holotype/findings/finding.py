@@ -43,6 +43,8 @@ class Finding:
     stats: OutputStats | None = None
     # for an output that did not reproduce exactly: recorded differences that can move it, most likely first
     candidates: tuple[str, ...] = ()
+    # a rule's `severity` for this output: the most a failing comparison of it counts as
+    ceiling: str | None = None
 
     def with_severity(self, severity: str) -> Finding:
         return replace(self, severity=severity)

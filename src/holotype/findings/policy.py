@@ -69,6 +69,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "output.changed": "fail",
     "output.adopted": "info",  # a baseline replaced by a logged record or adopt (diff)
     "output.unreadable": "fail",
+    "output.recorded_only": "info",  # an output a rule marks record_only changed: its digest is kept, not compared
     "output.rule": "fail",  # a rule key the output's format cannot honour (key on JSON, say): never ignored
     "output.foreign_write": "fail",  # an analysis wrote a file another analysis declares as its output
     # the numeric stack: native libraries, kernels, SIMD, CPU, numerics variables (docs/numerics.md)
@@ -92,6 +93,8 @@ def apply_policy(findings: Iterable[Finding], overrides: dict[str, str] | None =
     out = []
     for f in findings:
         severity = table.get(f.kind, "fail")
+        if f.ceiling is not None and SEVERITY_ORDER[severity] < SEVERITY_ORDER[f.ceiling]:
+            severity = f.ceiling  # a rule set how bad a failing comparison of this output is
         if strict and severity == "warn":
             severity = "fail"
         out.append(f.with_severity(severity))

@@ -13,7 +13,7 @@ from holotype.seeds import ANALYSIS_VARIABLE, PROJECT_SEED_VARIABLE, SEED_VARIAB
 from holotype.threads import THREAD_VARIABLES, threadpoolctl_folder
 
 # what a dry run shows of the environment: holotype's own variables and these
-SHOWN_VARIABLES = ("PYTHONHASHSEED", "VIRTUAL_ENV", "PYTHONPATH", *THREAD_VARIABLES)
+SHOWN_VARIABLES = ("PYTHONHASHSEED", "VIRTUAL_ENV", "PYTHONPATH", "SOURCE_DATE_EPOCH", *THREAD_VARIABLES)
 
 
 def hook_folder() -> str:
@@ -21,9 +21,17 @@ def hook_folder() -> str:
     return str(resources.files("holotype.run").joinpath("hook"))
 
 
-def analysis_environment(config: Config, python: str, analysis: Analysis, project_seed: int) -> dict[str, str]:
-    """The variables an analysis process sees: as if its environment were activated, plus seeds."""
+def analysis_environment(config: Config, python: str, analysis: Analysis, project_seed: int,
+                         epoch: int | None = None) -> dict[str, str]:
+    """The variables an analysis process sees: as if its environment were activated, plus seeds.
+
+    SOURCE_DATE_EPOCH is the record's (`epoch`), so tools that honour it (matplotlib's PDF, SVG and PS
+    writers, LaTeX, many documentation tools) stamp the same date at every run; one set in holotype's own
+    environment wins. HOLOTYPE_SVG_SALT fixes matplotlib's SVG id salt (the start-up hook applies it)."""
     env = dict(os.environ)
+    if epoch is not None and "SOURCE_DATE_EPOCH" not in env:
+        env["SOURCE_DATE_EPOCH"] = str(epoch)
+    env["HOLOTYPE_SVG_SALT"] = f"holotype-{project_seed}-{analysis.name}"
     bindir = Path(python).parent
     venv = bindir.parent
     if (venv / "pyvenv.cfg").exists():
@@ -87,7 +95,8 @@ class Plan:
         return [s.name for s in self.steps]
 
 
-def make_plan(config: Config, python: str, analyses: list[Analysis], project_seed: int) -> Plan:
+def make_plan(config: Config, python: str, analyses: list[Analysis], project_seed: int,
+              epoch: int | None = None) -> Plan:
     """The plan for `analyses` (already in run order, as Config.select gives them)."""
     producer = {out: a.name for a in config.analyses for out in a.outputs}
     steps = []
@@ -97,6 +106,6 @@ def make_plan(config: Config, python: str, analyses: list[Analysis], project_see
         except ValueError as exc:
             argv, error = (), f"cannot split the command: {exc}"
         after = tuple(dict.fromkeys(producer[i] for i in a.inputs if i in producer and producer[i] != a.name))
-        steps.append(Step(a.name, a.command, argv, analysis_environment(config, python, a, project_seed),
+        steps.append(Step(a.name, a.command, argv, analysis_environment(config, python, a, project_seed, epoch),
                           Path(config.root), derive_seed(project_seed, a.name), a.timeout, a.outputs, after, error))
     return Plan(tuple(steps), python, project_seed)

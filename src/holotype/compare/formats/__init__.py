@@ -1,7 +1,7 @@
 """Output formats: one comparer per format, registered by suffix and by name.
 
 A comparer is a small object with a `name`, the `suffixes` it claims, the rule keys it
-`honours` among key / ignore / sign_free, and `compare(output, expected, actual, rules)`
+`honours` among STRUCTURAL_KEYS, and `compare(output, expected, actual, rules)`
 returning an `Outcome`. A rule key set for an output whose format does not honour it is
 refused with a finding, never silently ignored. A new format is a new module here, listed
 in `_MODULES`.
@@ -18,7 +18,8 @@ from holotype.compare.outcome import Outcome
 from holotype.compare.source import Source
 from holotype.tolerance import RuleBook
 
-STRUCTURAL_KEYS = ("key", "ignore", "sign_free")
+# rule keys only some formats can honour (the numeric keys, format, record_only and severity apply to all)
+STRUCTURAL_KEYS = ("key", "ignore", "sign_free", "skip_lines", "mask", "whitespace", "channel_delta", "pixel_share")
 
 
 class FormatComparer(Protocol):
@@ -29,7 +30,7 @@ class FormatComparer(Protocol):
     def compare(self, output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome: ...
 
 
-_MODULES = ("table", "json", "arrays", "text", "parquet")
+_MODULES = ("table", "json", "arrays", "text", "parquet", "image", "figures", "notebook")
 _BY_NAME: dict[str, FormatComparer] = {}
 _BY_SUFFIX: dict[str, FormatComparer] = {}
 
@@ -64,11 +65,15 @@ def for_output(output: str) -> FormatComparer | None:
     return _BY_SUFFIX.get(os.path.splitext(output)[1].lower())
 
 
+def _is_set(value: object) -> bool:
+    return value is not None and value is not False and value != ()
+
+
 def refused_keys(comparer: FormatComparer, output: str, rules: RuleBook) -> list[str]:
     """The structural rule keys set for `output` that its format cannot honour."""
     tol = rules.for_output(output)
     columns = [r.settings for r in rules.rules if r.column_glob is not None and fnmatchcase(output, r.output_glob)]
-    set_keys = {k for k in STRUCTURAL_KEYS if getattr(tol, k)}
+    set_keys = {k for k in STRUCTURAL_KEYS if _is_set(getattr(tol, k))}
     for settings in columns:
-        set_keys |= {k for k in STRUCTURAL_KEYS if settings.get(k)}
+        set_keys |= {k for k in STRUCTURAL_KEYS if _is_set(settings.get(k))}
     return sorted(k for k in set_keys if k not in comparer.honours)

@@ -115,6 +115,9 @@ def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook)
         for p in paths:
             if _is_number(e[p][0]) and _is_number(a[p][0]):
                 continue
+            if isinstance(e[p][0], str) and isinstance(a[p][0], str):
+                judge_.text(e[p][0], a[p][0], p)
+                continue
             equal = type(e[p][0]) is type(a[p][0]) and e[p][0] == a[p][0]
             judge_.exact(equal, p, e[p][0], a[p][0])
         tallies.append(judge_.result())

@@ -3,7 +3,9 @@
 1. With seed_globals (HOLOTYPE_SEED set and HOLOTYPE_SEED_GLOBALS not "0"): seed the global generators at
    start-up. `random` is seeded at once (cheap). NumPy's legacy global generator is seeded right after
    `numpy.random` is first imported, by a meta-path hook, so a process that never imports NumPy pays nothing.
-2. With HOLOTYPE_RUN_REPORT set: at exit, write which top-level modules the process imported and, if it
+2. When matplotlib is imported, its SVG id salt is set from HOLOTYPE_SVG_SALT (unless the analysis set
+   one), so SVG figures are byte-identical run to run (SOURCE_DATE_EPOCH, set by holotype, fixes the dates).
+3. With HOLOTYPE_RUN_REPORT set: at exit, write which top-level modules the process imported and, if it
    loaded numeric libraries, which BLAS/LAPACK/OpenMP libraries (threadpoolctl; holotype's own copy is
    appended to sys.path from HOLOTYPE_THREADPOOLCTL, so an installed one wins). That is how holotype
    knows what each analysis used at run time, lazily imported dependencies included.
@@ -22,30 +24,30 @@ def _seed_value():
         return None
 
 
-class _SeedNumpyAfterImport:
-    """Finds nothing itself; wraps the real loader of numpy.random to seed it once loaded."""
+class _AfterImport:
+    """Finds nothing itself; wraps the real loader of module `name` to call `then(module)` once it is loaded."""
 
-    def __init__(self, seed):
-        self.seed = seed
+    def __init__(self, name, then):
+        self.name = name
+        self.then = then
 
     def find_spec(self, name, path=None, target=None):
-        if name != "numpy.random":
+        if name != self.name:
             return None
-
         for finder in sys.meta_path:
             if finder is self or not hasattr(finder, "find_spec"):
                 continue
             spec = finder.find_spec(name, path, target)
             if spec is not None and spec.loader is not None:
-                spec.loader = _SeedingLoader(spec.loader, self.seed)
+                spec.loader = _ThenLoader(spec.loader, self.then)
                 return spec
         return None
 
 
-class _SeedingLoader:
-    def __init__(self, inner, seed):
+class _ThenLoader:
+    def __init__(self, inner, then):
         self.inner = inner
-        self.seed = seed
+        self.then = then
 
     def create_module(self, spec):
         return self.inner.create_module(spec)
@@ -53,12 +55,20 @@ class _SeedingLoader:
     def exec_module(self, module):
         self.inner.exec_module(module)
         try:
-            module.seed(self.seed)
+            self.then(module)
         except Exception:
-            pass
+            pass  # a help, never a reason for the analysis to fail
 
     def __getattr__(self, name):
         return getattr(self.inner, name)
+
+
+def _fix_svg_salt(matplotlib):
+    """matplotlib names SVG clip paths and glyphs with random ids unless svg.hashsalt is set: set it (to
+    HOLOTYPE_SVG_SALT) when the analysis has not, so an SVG comes out the same at every run."""
+    salt = os.environ.get("HOLOTYPE_SVG_SALT")
+    if salt and matplotlib.rcParams.get("svg.hashsalt") is None:
+        matplotlib.rcParams["svg.hashsalt"] = salt
 
 
 NUMERIC = ("numpy", "scipy", "numexpr", "sklearn", "torch")
@@ -125,6 +135,10 @@ def _install():
 
     atexit.register(_report)
     sys.meta_path.append(_SeedsFallback())
+    if "matplotlib" in sys.modules:
+        _fix_svg_salt(sys.modules["matplotlib"])
+    else:
+        sys.meta_path.insert(0, _AfterImport("matplotlib", _fix_svg_salt))
     seed = _seed_value()
     if seed is None or os.environ.get("HOLOTYPE_SEED_GLOBALS") == "0":
         return
@@ -134,7 +148,7 @@ def _install():
     if "numpy.random" in sys.modules:
         sys.modules["numpy.random"].seed(seed)
     else:
-        sys.meta_path.insert(0, _SeedNumpyAfterImport(seed))
+        sys.meta_path.insert(0, _AfterImport("numpy.random", lambda module: module.seed(seed)))
 
 
 def _chain_previous():

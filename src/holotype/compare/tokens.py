@@ -1,0 +1,59 @@
+"""One splitter for numbers inside text: text lines, table cells and JSON strings all use it.
+
+A piece of text becomes its *shape* (the text with each number replaced by a marker, and by default
+every run of white space made one space) and its numbers. Two texts of the same shape are compared
+number by number with the tolerance that applies; anything else in them must match exactly. So
+`'144.086957:350.1092'` against `'143.738587:350.4783'` is two numbers that moved 0.2 %, not an
+unequal string, and `to_string()` padding that shifted because a sign appeared is not a change.
+"""
+
+from __future__ import annotations
+
+import re
+
+NUMBER = re.compile(
+    r"(?<![A-Za-z0-9_.])[-+]?(?:(?:\d+\.\d*|\.\d+|\d+)(?:[eE][-+]?\d+)?|inf(?:inity)?|nan)(?![A-Za-z0-9_])",
+    re.IGNORECASE,
+)
+MARK = "\x00"
+_SPACE = re.compile(r"\s+")
+
+# Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
+TIMELIKE = re.compile(
+    r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d+)?)?(?:Z|[+-]\d{2}:?\d{2})?)?"
+    r"|\d{1,2}:\d{2}(?::\d{2}(?:\.\d+)?)?(?:\s?[AaPp][Mm])?"
+    r"|\d{1,2}[/.]\d{1,2}[/.]\d{2,4}"
+    r"|\b(?:Mon|Tue|Wed|Thu|Fri|Sat|Sun)[a-z]*\b|\b(?:Jan|Feb|Mar|Apr|May|Jun|Jul|Aug|Sep|Oct|Nov|Dec)[a-z]*\b"
+    r"|\b\d+(?:\.\d+)?\s?(?:ms|s|sec|secs|seconds|min|minutes|h|hours)\b"
+    r"|\b\d{1,2}\s(?=(?:Jan|Feb|Mar|Apr|May|Jun|Jul|Aug|Sep|Oct|Nov|Dec))|\b(?:19|20)\d{2}\b",
+)
+
+
+def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[str]]:
+    """The text's shape and its numbers' texts (see the module text)."""
+    numbers: list[str] = []
+
+    def keep(m: re.Match[str]) -> str:
+        numbers.append(m.group(0))
+        return MARK
+
+    shape = NUMBER.sub(keep, text)
+    if not exact_space:
+        shape = _SPACE.sub(" ", shape).strip()
+    return shape, numbers
+
+
+def embedded_numbers(expected: str, actual: str) -> tuple[list[float], list[float]] | None:
+    """The numbers of two texts of the same shape, paired; None when their shapes differ (or hold none)."""
+    e_shape, e_nums = split_numbers(expected)
+    a_shape, a_nums = split_numbers(actual)
+    if e_shape != a_shape or len(e_nums) != len(a_nums) or not e_nums:
+        return None
+    return [float(x) for x in e_nums], [float(y) for y in a_nums]
+
+
+def only_time_differs(expected: str, actual: str) -> bool:
+    """Whether two unequal texts become equal once dates, times and durations are masked."""
+    if expected == actual:
+        return False
+    return _SPACE.sub(" ", TIMELIKE.sub(MARK, expected)).strip() == _SPACE.sub(" ", TIMELIKE.sub(MARK, actual)).strip()
