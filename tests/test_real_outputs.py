@@ -284,6 +284,8 @@ def test_a_failing_image_in_a_replay_leaves_a_difference_picture(tmp_path: Path)
 
     marked = np.asarray(Image.open(picture).convert("RGB"))
     assert (marked == [255, 0, 0]).all(axis=2).sum() > 0  # the differing pixels are in red
+    html = run_cli("report", "--format", "html", "-C", root).out
+    assert "data:image/png;base64," in html and "changed pixels in red" in html
 
 
 def test_a_large_image_compares_in_bounded_memory(tmp_path: Path) -> None:
@@ -444,3 +446,28 @@ def test_record_only_and_per_output_severity(tmp_path: Path) -> None:
     assert by_subject["out/session.log"]["kind"] == "output.recorded_only"
     assert by_subject["out/session.log"]["severity"] == "info"
     assert by_subject["out/fig.png"]["severity"] == "warn" and "counts a failure" in by_subject["out/fig.png"]["message"]
+
+
+# ----------------------------------------------------------------------------- start
+
+
+def test_start_suggests_notebooks_anywhere_scripts_with_a_body_and_the_outputs_they_write(tmp_path: Path) -> None:
+    write(tmp_path / "data" / "lakes.csv", "x\n1\n")
+    _notebook(tmp_path / "notebooks" / "explore.ipynb", ["1 + 1"])
+    _notebook(tmp_path / "reports" / "season" / "summary.ipynb", ["2 + 2"])
+    write(tmp_path / "analysis" / "helpers.py", '"""Shared helpers."""\nimport math\nLIMIT = 3\n\n'
+                                                 "def scale(x):\n    return math.sqrt(x)\n")
+    write(tmp_path / "analysis" / "fit.py", "import pandas as pd\nfrom pathlib import Path\n"
+                                            "df = pd.read_csv('data/lakes.csv')\ndf.to_csv('results/fit.csv')\n"
+                                            "Path('results/notes.txt').write_text('done')\n"
+                                            "with open('results/log.txt', 'w') as fh:\n    fh.write('x')\n")
+    write(tmp_path / "analysis" / "main_only.py", "def main():\n    pass\n\nif __name__ == '__main__':\n    main()\n")
+    assert run_cli("start", "-C", tmp_path).code == 0
+    text = (tmp_path / "holotype.toml").read_text()
+    assert '# notebook = "notebooks/explore.ipynb"' in text and '# notebook = "reports/season/summary.ipynb"' in text
+    assert "helpers" not in text  # a module of definitions is not an analysis
+    assert '# command = "python analysis/main_only.py"' in text
+    assert '# outputs = ["results/fit.csv", "results/notes.txt", "results/log.txt"]' in text
+    import tomllib
+
+    tomllib.loads(text)  # still valid TOML (the suggestions are comments)

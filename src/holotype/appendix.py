@@ -24,6 +24,7 @@ class OutputLine:
     ok: bool | None = None
     by_bytes: bool = False  # compared byte for byte (no reader for the format)
     candidates: tuple[str, ...] = ()  # for an output the latest replay did not reproduce exactly
+    picture: bytes | None = None  # PNG: where an image output differed in the latest replay
 
 
 @dataclass

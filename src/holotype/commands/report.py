@@ -8,8 +8,10 @@ from typing import Any
 
 from holotype.appendix import OutputLine, Provenance
 from holotype.config import load_config
+from holotype.errors import HolotypeError
 from holotype.findings.summary import summary_line
 from holotype.lockfile import LOCK_NAME, read_lock
+from holotype.safe_files import read_regular
 from holotype.store import ProjectStore
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -20,6 +22,24 @@ def tolerance_text(rules: RuleBook, output: str, recorded: dict[str, Any]) -> st
     columns = [f"{r.column_glob}: {rules.default.overlay(r.settings).describe()}"
                for r in rules.rules if r.column_glob is not None and fnmatchcase(output, r.output_glob)]
     return text + ("; " + "; ".join(columns) if columns else "")
+
+
+PICTURE_LIMIT = 32 << 20  # the largest difference picture the HTML report embeds
+
+
+def _picture(root: Path, message: str) -> bytes | None:
+    """The difference picture a replay finding names, when it is still in this project's logs."""
+    marker = "difference picture: "
+    if marker not in message:
+        return None
+    path = Path(message.split(marker, 1)[1].split(";")[0].strip())
+    logs = (root / ".holotype" / "logs").resolve()
+    try:
+        if path.resolve().parent != logs:
+            return None
+        return read_regular(path, limit=PICTURE_LIMIT)
+    except (OSError, HolotypeError):
+        return None
 
 
 def gather_provenance(root: Path) -> Provenance:
@@ -51,6 +71,7 @@ def gather_provenance(root: Path) -> Provenance:
                 line.result = str(f.get("message", ""))
                 line.candidates = tuple(str(c) for c in f.get("candidates") or ())
                 line.by_bytes = f.get("tolerance") == "byte-equal"
+                line.picture = _picture(root, line.result)
                 err = f.get("max_rel_err")
                 if not line.by_bytes:
                     line.max_rel_err = float(err) if isinstance(err, (int, float)) else (

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import base64
 import math
 from html import escape
 
@@ -132,6 +133,12 @@ def render_methods_html(prov: Provenance) -> str:
         if lines:
             parts.append(ErrorChart(name, lines).svg())
         for line in lines:
+            if line.picture:
+                data = base64.b64encode(line.picture).decode("ascii")
+                parts.append(f"<figure><img alt=\"where {escape(line.path)} differs\" style=\"max-width:100%\" "
+                             f"src=\"data:image/png;base64,{data}\"><figcaption>Where <code>{escape(line.path)}"
+                             "</code> differs in the latest replay: changed pixels in red over a faded copy"
+                             "</figcaption></figure>")
             if line.candidates:
                 parts.append(f"<p>What may have moved <code>{escape(line.path)}</code> ({escape(CAVEAT)}):</p><ol>"
                              + "".join(f"<li>{escape(c)}</li>" for c in line.candidates) + "</ol>")
