@@ -127,6 +127,40 @@ class Venv:
         (info / "RECORD").write_text(record)
 
 
+def wheel_of_installed(folder: Path, name: str, as_version: str | None = None) -> Path:
+    """A wheel re-made from a distribution installed here, from the files its RECORD lists (offline: for build
+    tools such as `wheel` that a test environment needs and no test wheelhouse offers). With `as_version`,
+    the same code under another version number (a "newer" installer for the upgrade test)."""
+    from importlib import metadata
+
+    dist = metadata.distribution(name)
+    version = as_version or dist.version
+    old_info = f"{name.replace('-', '_')}-{dist.version}.dist-info"
+    info = f"{name.replace('-', '_')}-{version}.dist-info"
+    folder.mkdir(parents=True, exist_ok=True)
+    path = folder / f"{name.replace('-', '_')}-{version}-py3-none-any.whl"
+    with zipfile.ZipFile(path, "w") as zf:
+        for item in dist.files or ():
+            rel = item.as_posix()
+            if rel.startswith("..") or "__pycache__" in rel or rel.endswith(".pyc") or \
+                    rel.endswith(("/INSTALLER", "/REQUESTED", "/direct_url.json")):
+                continue
+            full = Path(str(item.locate()))
+            if not full.is_file():
+                continue
+            data = full.read_bytes()
+            if rel.startswith(old_info):
+                rel = info + rel[len(old_info):]
+                if rel.endswith("/METADATA"):
+                    data = data.replace(f"\nVersion: {dist.version}\r".encode(), f"\nVersion: {version}\r".encode(), 1) \
+                        .replace(f"\nVersion: {dist.version}\n".encode(), f"\nVersion: {version}\n".encode(), 1)
+                elif rel.endswith("/RECORD"):
+                    data = data.replace(old_info.encode(), info.encode())
+            zf.writestr(rel, data)
+    assert any(n.startswith(info) for n in zipfile.ZipFile(path).namelist())
+    return path
+
+
 def make_venv(root: Path, wheels: Path) -> Venv:
     subprocess.run([sys.executable, "-m", "venv", str(root)], check=True, capture_output=True)
     return Venv(root, wheels)

@@ -405,14 +405,22 @@ def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> J
 @click.option("--find-links", multiple=True, help="Passed to the installer (repeatable).")
 @click.option("--index-url", default=None, help="Passed to the installer.")
 @click.option("--no-index", is_flag=True, help="Passed to the installer.")
+@click.option("--use-folder", "use_folder", multiple=True, metavar="RECORDED=LOCAL",
+              help="Where the source of an editable or local-folder package is here (repeatable).")
 def recreate(session: Session, folder: Path, python: str | None, find_links: tuple[str, ...],
-             index_url: str | None, no_index: bool) -> Judgement:
+             index_url: str | None, no_index: bool, use_folder: tuple[str, ...]) -> Judgement:
     """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
     from holotype.commands.recreate import InstallerOptions, recreate_environment
 
+    folders: dict[str, str] = {}
+    for item in use_folder:
+        recorded, sep, local = item.partition("=")
+        if not sep or not recorded or not local:
+            raise click.UsageError(f"--use-folder {item!r} should be RECORDED=LOCAL")
+        folders[recorded] = local
     session.say(f"building {folder} from holotype.lock …")
     options = InstallerOptions(list(find_links), index_url, no_index)
-    return recreate_environment(session.project, folder, python=python, installer=options)
+    return recreate_environment(session.project, folder, python=python, installer=options, folders=folders)
 
 
 @document_command("pins")

@@ -74,6 +74,9 @@ class PackageRecord:
     used: bool = False
     requires: tuple[str, ...] = ()
     top_level: tuple[str, ...] = entry(default=(), key="imports")
+    # the wheel it was installed from, as its WHEEL file says: compatibility tags and build tag
+    wheel_tags: tuple[str, ...] = ()
+    build: str | None = None
     # the installed files' contents (capture/installed.py): one digest over the files RECORD lists
     files: str | None = entry(default=None, digest=True)
     edited: tuple[str, ...] = ()  # files that already differed from RECORD when recorded

@@ -221,11 +221,13 @@ def _environment(doc: dict[str, Any], root: Path | None) -> Environment:
         packages[name] = PackageRecord(
             name=name,
             version=str(dist["version"]),
-            origin=origin_from_direct_url(dist.get("direct_url")),
+            origin=origin_from_direct_url(dist.get("direct_url"), root),
             installer=dist.get("installer"),
             requested=bool(dist.get("requested")),
             requires=tuple(dist.get("requires") or ()),
             top_level=tuple(dist.get("top_level") or ()),
+            wheel_tags=tuple(str(t) for t in dist.get("wheel_tags") or ()),
+            build=str(dist["build"]) if dist.get("build") else None,
         )
         if isinstance(dist.get("location"), str):
             locations[name] = dist["location"]

@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import os
 import re
 import urllib.parse
+from pathlib import Path
 from typing import Any
 
 from holotype.records import Origin
@@ -60,8 +62,32 @@ def hide_home(url: str) -> str:
     return url.replace(home + "/", "~/")
 
 
-def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
-    """Build an Origin from a parsed direct_url.json; `None` means installed from an index."""
+NEAR = 2  # a local path at most this many folders above the project is recorded relative to it
+
+
+def portable_url(url: str, root: Path | None) -> str:
+    """A local `file://` URL as the lock keeps it: relative to the project (`./tools/helper`, `../shared/x`)
+    when it lies inside or near it, else with the home folder as `~`; other URLs unchanged."""
+    if root is not None and url.startswith("file://"):
+        path = urllib.parse.unquote(urllib.parse.urlsplit(url).path)
+        try:
+            rel = os.path.relpath(path, os.path.realpath(root)) if os.path.isabs(path) else None
+        except ValueError:  # another drive
+            rel = None
+        if rel is not None:
+            parts = rel.split(os.sep)
+            ups = len([p for p in parts if p == ".."])
+            if ups == 0:
+                return "./" + "/".join(parts) if rel != "." else "."
+            if ups <= NEAR and all(p == ".." for p in parts[:ups]):
+                return "/".join(parts)
+    return hide_home(url)
+
+
+def origin_from_direct_url(doc: dict[str, Any] | None, root: Path | None = None) -> Origin:
+    """Build an Origin from a parsed direct_url.json; `None` means installed from an index.
+
+    Local paths are made portable (`portable_url`) when the project folder `root` is given."""
     if doc is None:
         return Origin("index")
     if not isinstance(doc, dict) or not isinstance(doc.get("url"), str):
@@ -73,7 +99,7 @@ def origin_from_direct_url(doc: dict[str, Any] | None) -> Origin:
     except (DirectUrlValidationError, TypeError, ValueError):
         # not a valid record: still never write a credential or the recording user's home folder
         return Origin("unknown", url=hide_home(strip_credentials(doc["url"])))
-    url = hide_home(strip_credentials(parsed.url))
+    url = portable_url(strip_credentials(parsed.url), root)
     if parsed.vcs_info is not None:
         return Origin(
             "vcs",

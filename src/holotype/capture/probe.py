@@ -88,6 +88,24 @@ def _top_level_names(dist):
     return sorted(names)
 
 
+def _wheel_facts(dist):
+    """The WHEEL file's tags (one per `Tag:` line) and build tag, as the installer copied it from the wheel."""
+    try:
+        text = dist.read_text("WHEEL") or ""
+    except Exception:
+        text = ""
+    tags = []
+    build = None
+    for line in text.splitlines():
+        key, _, value = line.partition(":")
+        key, value = key.strip().lower(), value.strip()
+        if key == "tag" and value:
+            tags.append(value)
+        elif key == "build" and value:
+            build = value
+    return sorted(set(tags)), build
+
+
 def _search_path():
     """sys.path as the analyses see it. holotype runs this probe isolated (-I), which drops the user's
     site-packages; an analysis run normally has it (outside a virtual environment), so add it back."""
@@ -129,6 +147,7 @@ def _distributions():
             origin = json.loads(direct_url) if direct_url else None
         except ValueError:
             origin = {"invalid": direct_url[:200]}
+        tags, build = _wheel_facts(dist)
         result.append(
             {
                 "name": name,
@@ -139,6 +158,8 @@ def _distributions():
                 "top_level": _top_level_names(dist),
                 "direct_url": origin,
                 "location": str(getattr(dist, "_path", "") or "") or None,  # the .dist-info folder
+                "wheel_tags": tags,
+                "build": build,
             }
         )
     return result

@@ -15,5 +15,5 @@ def pin_packages(root: Path, to: str, find_links: list[Path] | None = None) -> s
     """The text of requirements.txt pins or a pylock.toml for the project's lock."""
     lock = read_lock(Path(root) / LOCK_NAME)
     if to == "requirements":
-        return export_requirements(lock)
-    return export_pylock(lock, find_links or [])
+        return export_requirements(lock, Path(root))
+    return export_pylock(lock, find_links or [], Path(root))

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import glob
 import os
+import shutil
 import subprocess
 import sys
 from dataclasses import dataclass, field
@@ -14,8 +15,8 @@ from holotype.capture.environment import capture_environment, venv_interpreter
 from holotype.errors import HolotypeError, InstallError
 from holotype.findings import Finding, Judgement
 from holotype.lockfile import LOCK_NAME, read_lock
-from holotype.records import LockContents
-from holotype.standards.requirements import requirement_line
+from holotype.records import LockContents, PackageRecord
+from holotype.standards.requirements import local_folder, local_url, requirement_line
 from holotype.verify import verify_project
 
 
@@ -73,9 +74,107 @@ def find_interpreter(lock: LockContents) -> str:
                         "or pass --python PATH to use another interpreter")
 
 
+def wheel_cache() -> Path:
+    """holotype's own wheel cache: $HOLOTYPE_CACHE_DIR/wheels, else the platform's user cache folder."""
+    override = os.environ.get("HOLOTYPE_CACHE_DIR")
+    if override:
+        return Path(override) / "wheels"
+    from platformdirs import user_cache_dir
+
+    return Path(user_cache_dir("holotype", appauthor=False)) / "wheels"
+
+
+class _Installer:
+    """Runs the new environment's installer, keeping all of its output in one log named in any failure."""
+
+    def __init__(self, python: str, log: Path, options: InstallerOptions) -> None:
+        self.python, self.log, self.options = python, log, options
+        self.text: list[str] = []
+
+    def run(self, what: str, *args: str, fatal: bool = True) -> str | None:
+        """Run `pip ARGS`; on failure raise (or return) one line with the installer's first error line."""
+        argv = [self.python, "-m", "pip", "--disable-pip-version-check", *args]
+        proc = subprocess.run(argv, capture_output=True, text=True, stdin=subprocess.DEVNULL)
+        self.text += [f"$ {' '.join(argv)}", proc.stdout, proc.stderr]
+        write_atomic(self.log, "\n".join(self.text))
+        if proc.returncode == 0:
+            return None
+        lines = [ln.strip() for ln in (proc.stderr + "\n" + proc.stdout).splitlines() if ln.strip()]
+        first = next((ln for ln in lines if ln.startswith("ERROR:")), None) or (lines[-1] if lines else "no output")
+        message = f"{what} failed: {first[:400]} (the installer's full output: {self.log})"
+        if fatal:
+            raise InstallError(message)
+        return message
+
+
+def _bundled_wheels(python: str) -> Path:
+    """The folder of the wheels the interpreter's ensurepip installs (its own pip among them)."""
+    proc = subprocess.run([python, "-c", "import ensurepip, os; print(os.path.dirname(ensurepip.__file__))"],
+                          capture_output=True, text=True, timeout=60)
+    return Path(proc.stdout.strip() or ".") / "_bundled"
+
+
+def _matching_wheel(folder: Path, pkg: PackageRecord) -> Path | None:
+    """A wheel of exactly this version (and, when the lock knows them, these tags and build) in `folder`."""
+    from packaging.utils import InvalidWheelFilename, canonicalize_name, parse_wheel_filename
+    from packaging.version import InvalidVersion, Version
+
+    try:
+        wanted = Version(pkg.version)
+    except InvalidVersion:
+        return None
+    for path in sorted(folder.glob("*.whl")) if folder.is_dir() else ():
+        try:
+            name, version, build, tags = parse_wheel_filename(path.name)
+        except (InvalidWheelFilename, InvalidVersion):
+            continue
+        if canonicalize_name(name) != pkg.name or version != wanted:
+            continue
+        if pkg.wheel_tags and {str(t) for t in tags} != set(pkg.wheel_tags):
+            continue
+        found_build = f"{build[0]}{build[1]}" if build else None
+        if (pkg.wheel_tags or pkg.build) and found_build != pkg.build:
+            continue  # another build of the same version (a rebuilt `-1` wheel, say)
+        return path
+    return None
+
+
+def _offered(folder: Path, pkg: PackageRecord) -> str:
+    from packaging.utils import InvalidWheelFilename, canonicalize_name, parse_wheel_filename
+
+    for path in sorted(folder.glob("*.whl")):
+        try:
+            name, version, _build, _tags = parse_wheel_filename(path.name)
+        except InvalidWheelFilename:
+            continue
+        if canonicalize_name(name) == pkg.name and str(version) == pkg.version:
+            return path.name
+    return "none"
+
+
+def _editable_folder(name: str, url: str, root: Path, folders: dict[str, str]) -> Path:
+    """Where an editable or local-folder package's source is on this machine: a --use-folder mapping, else
+    the recorded path (relative to the project, or under the home folder)."""
+    for recorded, local in folders.items():
+        if url.rstrip("/") == recorded.rstrip("/") or url.endswith("/" + recorded.strip("./").rstrip("/")):
+            return Path(local).expanduser().absolute()
+    found = local_folder(url, root)
+    if not found.is_dir():
+        raise HolotypeError(f"{name} was installed from the local folder {url} (here: {found}), which does not "
+                            f"exist; pass --use-folder {url}=PATH to say where its source is on this machine")
+    return found
+
+
 def recreate_environment(root: Path, target: Path, *, python: str | None = None,
-                        installer: InstallerOptions | None = None) -> Judgement:
-    """Create `target`, install every locked package at its exact version and origin (no resolution), check."""
+                        installer: InstallerOptions | None = None, folders: dict[str, str] | None = None) -> Judgement:
+    """Create `target` and install every locked package exactly as recorded (no dependency resolution), then check.
+
+    Index packages come as the recorded wheels: exact version, and the recorded wheel tags and build where the
+    lock has them; a look-alike (another build or platform tag) is refused. Wheels are kept in holotype's
+    wheel cache, so a second recreate of the same lock installs offline. Git packages install at the recorded
+    commit, editable packages as editable from their source folder, local folders and files relative to the
+    project. The new environment's installer is first brought up to date where the package source offers a
+    newer one (an old bundled pip cannot read every kind of requirement)."""
     root = Path(root)
     lock = read_lock(root / LOCK_NAME)
     target = Path(target).absolute()
@@ -88,27 +187,73 @@ def recreate_environment(root: Path, target: Path, *, python: str | None = None,
         raise HolotypeError(f"cannot create a virtual environment with {base}: "
                             f"{(created.stderr.strip().splitlines() or ['unknown error'])[-1]}")
     venv_python = str(venv_interpreter(target))
-    present = capture_environment(venv_python, root).packages
-    lines = []
-    for name in sorted(lock.packages):
-        pkg = lock.packages[name]
-        if name in present and present[name].version == pkg.version and pkg.origin.kind == "index":
-            continue  # the fresh environment already has it (pip itself, usually)
-        if pkg.origin.kind in ("directory", "editable") and pkg.origin.url:
-            local = os.path.expanduser(pkg.origin.url.removeprefix("file://"))
-            if not os.path.isdir(local):
-                raise HolotypeError(f"{name} was installed from the local folder {local}, which does not exist here")
-        lines.append(requirement_line(pkg))
+    pip = _Installer(venv_python, target / "holotype-install.log", installer)
     findings: list[Finding] = []
-    if lines:
-        req_file = target / "holotype-requirements.txt"
-        write_atomic(req_file, "\n".join(lines) + "\n")
-        proc = subprocess.run([venv_python, "-m", "pip", "install", "--disable-pip-version-check", "--no-deps",
-                               "-r", str(req_file), *installer.args()], capture_output=True, text=True)
-        if proc.returncode != 0:
-            tail = [ln for ln in proc.stderr.strip().splitlines() if ln.strip()][-1:] or ["unknown error"]
-            raise InstallError(f"installing the locked packages into {target} failed: {tail[0]}")
+    upgraded = pip.run("bringing the new environment's installer up to date", "install", "--upgrade", "pip",
+                       *installer.args(), fatal=False)
+    if upgraded:
+        findings.append(Finding("lockfile", str(target), "lockfile.note", f"kept the bundled installer: {upgraded}"))
+    present = capture_environment(venv_python, root).packages
+    cache = wheel_cache()
+    cache.mkdir(parents=True, exist_ok=True)
+    index = [p for name, p in sorted(lock.packages.items()) if p.origin.kind == "index" and name != "pip"
+             and not (name in present and present[name].version == p.version)]
+    missing = [p for p in index if _matching_wheel(cache, p) is None]
+    if missing:
+        req_file = target / "holotype-download.txt"
+        write_atomic(req_file, "".join(f"{p.name}=={p.version}\n" for p in missing))
+        pip.run("fetching the locked wheels", "download", "--no-deps", "--prefer-binary", "-d", str(cache),
+                "-r", str(req_file), *installer.args())
+    # only the chosen wheels, offered to the installer as a package source of its own: it installs them as
+    # index packages (no direct-URL record), and cannot pick another build lying in the cache
+    chosen = target / ".holotype-wheels"
+    chosen.mkdir()
+    files: list[str] = []
+    for pkg in index:
+        wheel = _matching_wheel(cache, pkg)
+        if wheel is None:
+            raise InstallError(f"{pkg.name} {pkg.version}: the package source offers {_offered(cache, pkg)}, not the "
+                               f"recorded wheel (tags {', '.join(pkg.wheel_tags) or 'unknown'}"
+                               f"{', build ' + pkg.build if pkg.build else ''}); holotype does not install a "
+                               "look-alike (point --find-links at the recorded wheel)")
+        try:
+            os.link(wheel, chosen / wheel.name)
+        except OSError:
+            shutil.copyfile(wheel, chosen / wheel.name)
+        files.append(f"{pkg.name}=={pkg.version}")
+    others: list[str] = []
+    for name, pkg in sorted(lock.packages.items()):
+        o = pkg.origin
+        if o.kind == "editable" and o.url:
+            others += ["-e", str(_editable_folder(name, o.url, root, folders or {}))]
+        elif o.kind == "directory" and o.url:
+            others.append(str(_editable_folder(name, o.url, root, folders or {})))
+        elif o.kind == "vcs" and o.url and o.commit:
+            # the URL form every installer version reads (older ones refuse 'name @ git+file://…')
+            sub = f"&subdirectory={o.subdirectory}" if o.subdirectory else ""
+            others.append(f"{o.vcs}+{local_url(o.url, root)}@{o.commit}#egg={name}{sub}")
+        elif o.kind in ("vcs", "archive"):
+            others.append(requirement_line(pkg, root))
+    if files:
+        pip.run("installing the locked wheels", "install", "--no-deps", "--no-compile", "--no-index",
+                "--find-links", str(chosen), *files)
+    if others:  # built from source: first in the installer's own build environment, else with what is installed
+        what = "installing the locked git, editable and local packages"
+        if pip.run(what, "install", "--no-deps", "--no-compile", *others, *installer.args(), fatal=False):
+            pip.run(what, "install", "--no-deps", "--no-compile", "--no-build-isolation", *others,
+                    *installer.args())
+    shutil.rmtree(chosen, ignore_errors=True)
+    locked_pip = lock.packages.get("pip")
+    if locked_pip is not None and locked_pip.origin.kind == "index":
+        kept = _matching_wheel(cache, locked_pip) or _matching_wheel(_bundled_wheels(venv_python), locked_pip)
+        source = ["--no-index", "--find-links", str(kept.parent)] if kept else list(installer.args())
+        kept_back = pip.run(f"installing the locked pip {locked_pip.version}", "install", "--no-deps",
+                            "--no-compile", f"pip=={locked_pip.version}", *source, fatal=False)
+        if kept_back:
+            findings.append(Finding("lockfile", str(target), "lockfile.note", f"kept the newer installer: {kept_back}"))
     findings.append(Finding("lockfile", str(target), "lockfile.note",
-                            f"built with {base}; installed {len(lines)} package(s) without dependency resolution"))
+                            f"built with {base}; installed {len(files)} wheel(s) from holotype's wheel cache and "
+                            f"{len(others) - others.count('-e')} other package(s) without dependency resolution; "
+                            f"the installer's output is in {pip.log}"))
     checked = verify_project(root, command="recreate", python=venv_python)
     return Judgement("recreate", tuple(findings) + checked.findings, notes=checked.notes, warnings=checked.warnings)

@@ -58,7 +58,13 @@ def _contents(rec: PackageRecord, found: PackageRecord, kind: str, role: str, th
     """The same version with other contents: installed files edited, or a local install's source folder."""
     out: list[Finding] = []
     name = rec.name
-    if rec.files and found.files and rec.files != found.files:
+    if rec.wheel_tags and found.wheel_tags and (set(rec.wheel_tags) != set(found.wheel_tags) or
+                                                rec.build != found.build):
+        def wheel(p: PackageRecord) -> str:
+            return ", ".join(p.wheel_tags) + (f" (build {p.build})" if p.build else "")
+
+        out.append(Finding("package", name, kind, f"another build of {rec.version}: wheel {wheel(rec)} {then}, "
+                           f"{wheel(found)} {now}{role}", wheel(rec), wheel(found)))
         edited = [rel for rel in found.edited if rel not in rec.edited]
         if edited:
             text = (f"{len(edited)} installed file{'s' if len(edited) != 1 else ''} changed since {then} "

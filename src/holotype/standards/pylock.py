@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import hashlib
+import os
 from pathlib import Path
 from typing import Any
 
@@ -10,7 +11,7 @@ from holotype.errors import HolotypeError
 from holotype.phrasing import listed
 from holotype.records import LockContents, PackageRecord
 from holotype.safe_files import open_regular
-from holotype.standards.requirements import expand_home
+from holotype.standards.requirements import is_relative, local_folder
 
 
 def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
@@ -41,8 +42,17 @@ def _sha256(path: Path) -> str:
     return h.hexdigest()
 
 
-def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
-    """A PEP 751 document. Index packages need their files' hashes, found in `find_links` folders."""
+def _relative(path: Path, root: Path) -> str:
+    """A path as PEP 751 wants it, relative to the lock file's folder (the project): never absolute."""
+    return Path(os.path.relpath(Path(path).resolve(), Path(root).resolve())).as_posix()
+
+
+def pylock_dict(lock: LockContents, find_links: list[Path], root: Path | None = None) -> dict[str, Any]:
+    """A PEP 751 document. Index packages need their files' hashes, found in `find_links` folders.
+
+    Every path in it is relative to the project folder (where pylock.toml belongs): no absolute path of
+    this machine is written."""
+    root = Path(root or ".")
     packages: list[dict[str, Any]] = []
     unhashed: list[str] = []
     for name in sorted(lock.packages):
@@ -54,10 +64,11 @@ def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
                                               "requested-revision": o.requested_revision,
                                               "subdirectory": o.subdirectory}.items() if v}
         elif o.kind in ("directory", "editable") and o.url:
-            entry["directory"] = {"path": expand_home(o.url).removeprefix("file://"), "editable": o.kind == "editable"}
+            entry["directory"] = {"path": _relative(local_folder(o.url, root), root), "editable": o.kind == "editable"}
         elif o.kind == "archive" and o.url and o.archive_hash and "=" in o.archive_hash:
             algo, digest = o.archive_hash.split("=", 1)
-            entry["archive"] = {"url": o.url, "hashes": {algo: digest}}
+            entry["archive"] = {"url": o.url, "hashes": {algo: digest}} if not o.url.startswith("file:") and not \
+                is_relative(o.url) else {"path": _relative(local_folder(o.url, root), root), "hashes": {algo: digest}}
         else:
             files = _files_for(pkg, find_links)
             wheels = [p for p in files if p.suffix == ".whl"]
@@ -66,9 +77,10 @@ def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
                 unhashed.append(f"{name} {pkg.version}")
                 continue
             if wheels:
-                entry["wheels"] = [{"name": p.name, "path": str(p), "hashes": {"sha256": _sha256(p)}} for p in wheels]
+                entry["wheels"] = [{"name": p.name, "path": _relative(p, root), "hashes": {"sha256": _sha256(p)}}
+                                   for p in wheels]
             if sdists:
-                entry["sdist"] = {"name": sdists[0].name, "path": str(sdists[0]),
+                entry["sdist"] = {"name": sdists[0].name, "path": _relative(sdists[0], root),
                                   "hashes": {"sha256": _sha256(sdists[0])}}
         packages.append(entry)
     if unhashed:
@@ -80,11 +92,11 @@ def pylock_dict(lock: LockContents, find_links: list[Path]) -> dict[str, Any]:
             "requires-python": f"=={lock.interpreter.version}", "packages": packages}
 
 
-def export_pylock(lock: LockContents, find_links: list[Path]) -> str:
+def export_pylock(lock: LockContents, find_links: list[Path], root: Path | None = None) -> str:
     import tomli_w
     from packaging.pylock import Pylock, PylockValidationError
 
-    doc = pylock_dict(lock, find_links)
+    doc = pylock_dict(lock, find_links, root)
     try:
         Pylock.from_dict(doc)  # PEP 751's reference reader must accept what we write
     except PylockValidationError as exc:
