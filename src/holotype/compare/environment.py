@@ -65,6 +65,7 @@ def _contents(rec: PackageRecord, found: PackageRecord, kind: str, role: str, th
 
         out.append(Finding("package", name, kind, f"another build of {rec.version}: wheel {wheel(rec)} {then}, "
                            f"{wheel(found)} {now}{role}", wheel(rec), wheel(found)))
+    elif rec.files and found.files and rec.files != found.files:  # (another build has other files anyway)
         edited = [rel for rel in found.edited if rel not in rec.edited]
         if edited:
             text = (f"{len(edited)} installed file{'s' if len(edited) != 1 else ''} changed since {then} "
