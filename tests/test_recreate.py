@@ -28,11 +28,11 @@ def _git(folder: Path, *args: str) -> str:
     return subprocess.run(["git", *args], cwd=folder, check=True, capture_output=True, text=True).stdout.strip()
 
 
-@pytest.fixture
-def wheelhouse(tmp_path: Path, wheelhouse: Path) -> Path:
+@pytest.fixture(scope="module")
+def wheelhouse(tmp_path_factory: pytest.TempPathFactory, wheelhouse: Path) -> Path:
     """The test wheelhouse plus `wheel`, which the venv's bundled setuptools needs to build the git and
     editable packages offline."""
-    folder = tmp_path / "wheelhouse"
+    folder = tmp_path_factory.mktemp("recreate") / "wheelhouse"
     shutil.copytree(wheelhouse, folder)
     wheel_of_installed(folder, "wheel")
     wheel_of_installed(folder, "packaging")  # what wheel itself requires
@@ -40,10 +40,11 @@ def wheelhouse(tmp_path: Path, wheelhouse: Path) -> Path:
     return folder
 
 
-@pytest.fixture
-def real_project(tmp_path: Path, wheelhouse: Path) -> Path:
-    """A project with index packages, a git package at a commit and an editable helper inside the project."""
-    base = tmp_path / "lab"
+@pytest.fixture(scope="module")
+def real_project(tmp_path_factory: pytest.TempPathFactory, wheelhouse: Path, _session_cache: Path) -> Path:
+    """A project with index packages, a git package at a commit and an editable helper inside the project
+    (built once for the module: the tests read it, recreate from it and copy it, never change it)."""
+    base = tmp_path_factory.mktemp("recreate") / "lab"
     root = base / "survey"
     repo = _package(base / "songbird", "songbird", "0.3", "CALLS = 12\n")
     _git(repo, "init", "-q")
@@ -57,7 +58,9 @@ def real_project(tmp_path: Path, wheelhouse: Path) -> Path:
     venv.pip("install", "--no-deps", "--no-build-isolation", "-e", str(root / "tools" / "lakehelp"))
     write(root / "fit.py", "import alpha, songbird, lakehelp\n")
     write(root / "holotype.toml", 'python = ".venv/bin/python"\nseed = 3\nexclude = ["tools"]\n')
-    result = run_cli("record", "--no-run", "-C", root)
+    with pytest.MonkeyPatch.context() as patch:  # the session's cache, never the user's
+        patch.setenv("HOLOTYPE_CACHE_DIR", str(_session_cache))
+        result = run_cli("record", "--no-run", "-C", root)
     assert result.code == 0, result.out + result.err
     return root
 
@@ -88,6 +91,13 @@ def test_recreate_installs_git_editable_and_index_packages_and_checks_clean(real
     # a second recreate needs no package source for the index packages: holotype's wheel cache has them
     again = run_cli("recreate", tmp_path / "again", "-C", real_project, "--no-index", "--format", "json")
     assert again.code == 0, again.out + again.err
+    # and pins --to pylock hashes the cached wheels (the venv's own pip and setuptools come from ensurepip's)
+    import ensurepip
+
+    bundled = Path(ensurepip.__file__).parent / "_bundled"
+    pylock = run_cli("pins", "--to", "pylock", "-C", real_project, "--find-links", bundled)
+    assert pylock.code == 0, pylock.err
+    assert "alpha-1.0-py3-none-any.whl" in pylock.out
 
 
 def test_the_same_lock_recreated_from_a_moved_copy_is_clean(real_project: Path, tmp_path: Path,

@@ -28,6 +28,7 @@ import re
 import time
 from collections.abc import Iterable
 from dataclasses import dataclass, field
+from typing import NamedTuple
 from pathlib import Path
 
 from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
@@ -43,8 +44,7 @@ INSTALLER_MARKS = frozenset({"RECORD", "INSTALLER", "REQUESTED", "direct_url.jso
 TREE_SKIP = ("*.pyc", "*.pyo", "*.egg-info", "build", "dist", ".eggs")
 
 
-@dataclass(frozen=True)
-class Listed:
+class Listed(NamedTuple):
     """One file RECORD lists: its path under the site folder and the digest the installer wrote."""
 
     rel: str
@@ -82,6 +82,30 @@ def _kept(rel: str) -> bool:
         return False
     head, _, tail = rel.partition("/")
     return not (tail in INSTALLER_MARKS and head.endswith(".dist-info"))
+
+
+def cached_listing(dist_info: Path, cache: DigestCache | None) -> list[Listed] | None:
+    """read_listing, answered from the cache while RECORD keeps its identity (the parse is the slow part)."""
+    if cache is None:
+        return read_listing(dist_info)
+    try:
+        st = os.stat(dist_info / "RECORD")
+    except OSError:
+        return None
+    stamp = f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"
+    key = f"listing:{dist_info}"
+    known = cache.fact(key)
+    if known:
+        try:
+            doc = json.loads(known)
+            if doc["stamp"] == stamp:
+                return [Listed(rel, recorded) for rel, recorded in doc["files"]]
+        except (ValueError, KeyError, TypeError):
+            pass
+    listing = read_listing(dist_info)
+    if listing is not None and time.time_ns() - max(st.st_mtime_ns, st.st_ctime_ns) > RACY_SECONDS * 1e9:
+        cache.remember(key, json.dumps({"stamp": stamp, "files": listing}))
+    return listing
 
 
 def read_listing(dist_info: Path) -> list[Listed] | None:
@@ -201,19 +225,26 @@ def _local_folder(url: str | None) -> Path | None:
 
 
 def _identities(site: Path, listing: list[Listed]) -> str:
-    """One digest of every listed file's identity (inode, size, times): unchanged files give the same."""
-    h = hashlib.sha256()
-    for item in listing:
+    """One digest of every listed file's identity (inode, size, times, mode): unchanged files give the same.
+
+    "" when a file changed a moment ago: its times may be shared with the next write, so nothing is trusted."""
+    prefix = str(site) + os.sep
+    lstat = os.lstat
+    parts: list[str] = []
+    newest = 0
+    for rel, _ in listing:
         try:
-            st = os.lstat(os.path.join(site, item.rel))
+            st = lstat(prefix + rel)
         except OSError:
-            h.update(f"{item.rel}\0-\n".encode("utf-8", "surrogateescape"))
+            parts.append(rel + "\0-")
             continue
-        if time.time_ns() - max(st.st_mtime_ns, st.st_ctime_ns) < RACY_SECONDS * 1e9:
-            return ""  # changed a moment ago: its times may be shared with the next write, so trust nothing
-        h.update(f"{item.rel}\0{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}:"
-                 f"{st.st_mode}\n".encode("utf-8", "surrogateescape"))
-    return h.hexdigest()
+        changed = st.st_ctime_ns if st.st_ctime_ns > st.st_mtime_ns else st.st_mtime_ns
+        if changed > newest:
+            newest = changed
+        parts.append(f"{rel}\0{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}:{st.st_mode}")
+    if time.time_ns() - newest < RACY_SECONDS * 1e9:
+        return ""
+    return hashlib.sha256("\n".join(parts).encode("utf-8", "surrogateescape")).hexdigest()
 
 
 def _listed_contents(site: Path, listing: list[Listed], cache: DigestCache | None) -> InstalledFiles:
@@ -249,12 +280,17 @@ def digest_installed(env: Environment, project: Path, *, cache: DigestCache | No
     out: dict[str, InstalledFiles] = {}
     roots: dict[str, list[Path]] = {}
     for name, location in sorted(env.locations.items()):
-        listing = read_listing(Path(location))
+        listing = cached_listing(Path(location), cache)
         if listing is None:
             continue
         if name in env.packages and env.packages[name].origin.kind == "editable":
             roots[name] = code_roots(Path(location).parent, listing)
         site = Path(location).parent
+        if name in env.packages and env.packages[name].origin.kind == "editable":
+            # what an editable install puts in site-packages names the source folder's absolute path (a .pth
+            # file, a finder module): not its code, which `tree` digests; left out so a moved copy is equal
+            listing = [item for item in listing if "/" in item.rel or not (
+                item.rel.endswith(".pth") or item.rel.startswith("__editable__"))]
         key = f"installed:{location}"
         stamp = _identities(site, listing) if cache is not None else ""
         if cache is not None and stamp:

@@ -17,6 +17,7 @@ from holotype.findings import Finding, Judgement
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import LockContents, PackageRecord
 from holotype.standards.requirements import local_folder, local_url, requirement_line
+from holotype.standards.wheel_cache import wheel_cache
 from holotype.verify import verify_project
 
 
@@ -72,16 +73,6 @@ def find_interpreter(lock: LockContents) -> str:
             return exe
     raise HolotypeError(f"no Python {wanted} found on PATH or in the usual install folders; install it, "
                         "or pass --python PATH to use another interpreter")
-
-
-def wheel_cache() -> Path:
-    """holotype's own wheel cache: $HOLOTYPE_CACHE_DIR/wheels, else the platform's user cache folder."""
-    override = os.environ.get("HOLOTYPE_CACHE_DIR")
-    if override:
-        return Path(override) / "wheels"
-    from platformdirs import user_cache_dir
-
-    return Path(user_cache_dir("holotype", appauthor=False)) / "wheels"
 
 
 class _Installer:

@@ -17,12 +17,20 @@ from holotype.standards.requirements import is_relative, local_folder
 def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
     from packaging.utils import canonicalize_name, parse_sdist_filename, parse_wheel_filename
 
-    found = []
+    found: list[Path] = []
+    names: set[str] = set()
     for folder in folders:
         for path in sorted(folder.iterdir()) if folder.is_dir() else []:
+            if path.name in names:
+                continue  # the same file in two folders (a wheelhouse and the cache)
             try:
                 if path.suffix == ".whl":
-                    name, version, _, _ = parse_wheel_filename(path.name)
+                    name, version, build, tags = parse_wheel_filename(path.name)
+                    # only the build that was installed: the lock's wheel tags and build tag, where it has them
+                    if pkg.wheel_tags and {str(t) for t in tags} != set(pkg.wheel_tags):
+                        continue
+                    if (pkg.wheel_tags or pkg.build) and (f"{build[0]}{build[1]}" if build else None) != pkg.build:
+                        continue
                 elif path.name.endswith(".tar.gz"):
                     name, version = parse_sdist_filename(path.name)
                 else:
@@ -31,6 +39,7 @@ def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
                 continue
             if name == canonicalize_name(pkg.name) and str(version) == pkg.version:
                 found.append(path)
+                names.add(path.name)
     return found
 
 
@@ -87,7 +96,8 @@ def pylock_dict(lock: LockContents, find_links: list[Path], root: Path | None = 
         shown = listed(unhashed, 3)
         raise HolotypeError(f"pylock.toml needs a file hash for each index package, and none was found for {shown}; "
                             "pass --find-links DIR holding their wheels (for example from 'pip download --no-deps "
-                            "-d DIR -r requirements.txt')")
+                            "-d DIR -r requirements.txt'), or run 'holotype recreate' once, which keeps the wheels it "
+                            "fetches in holotype's wheel cache, where pins looks too")
     return {"lock-version": "1.0", "created-by": "holotype",
             "requires-python": f"=={lock.interpreter.version}", "packages": packages}
 
