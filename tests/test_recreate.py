@@ -52,11 +52,13 @@ def real_project(tmp_path_factory: pytest.TempPathFactory, wheelhouse: Path, _se
     _git(repo, "-c", "user.name=t", "-c", "user.email=t@example.org", "commit", "-q", "-m", "first")
     commit = _git(repo, "rev-parse", "HEAD")
     _package(root / "tools" / "lakehelp", "lakehelp", "1.0", "THRESHOLD = 0.5\n")
+    _package(root / "tools" / "gauges", "gauges", "2.0", "UNITS = 'cm'\n")
     venv = make_venv(root / ".venv", wheelhouse)
     venv.install("alpha==1.0", "beta==1.0", "wheel")
     venv.pip("install", "--no-deps", "--no-build-isolation", f"git+{repo.as_uri()}@{commit}")
     venv.pip("install", "--no-deps", "--no-build-isolation", "-e", str(root / "tools" / "lakehelp"))
-    write(root / "fit.py", "import alpha, songbird, lakehelp\n")
+    venv.pip("install", "--no-deps", "--no-build-isolation", str(root / "tools" / "gauges"))  # a local folder
+    write(root / "fit.py", "import alpha, songbird, lakehelp, gauges\n")
     write(root / "holotype.toml", 'python = ".venv/bin/python"\nseed = 3\nexclude = ["tools"]\n')
     with pytest.MonkeyPatch.context() as patch:  # the session's cache, never the user's
         patch.setenv("HOLOTYPE_CACHE_DIR", str(_session_cache))
@@ -70,6 +72,7 @@ def test_the_lock_keeps_wheel_tags_and_portable_local_paths(real_project: Path) 
     assert lock.packages["alpha"].wheel_tags == ("py3-none-any",)
     assert lock.packages["lakehelp"].origin.kind == "editable"
     assert lock.packages["lakehelp"].origin.url == "./tools/lakehelp"
+    assert lock.packages["gauges"].origin.kind == "directory" and lock.packages["gauges"].origin.url == "./tools/gauges"
     assert lock.packages["songbird"].origin.kind == "vcs" and lock.packages["songbird"].origin.url == "../songbird"
     text = (real_project / "holotype.lock").read_text()
     assert str(real_project) not in text and str(real_project.parent) not in text  # no path of this machine
@@ -88,6 +91,8 @@ def test_recreate_installs_git_editable_and_index_packages_and_checks_clean(real
     assert log.index("Successfully installed pip-99.0") < log.index("songbird")
     meta = next((target / "lib").glob("python*/site-packages/lakehelp-1.0.dist-info"))
     assert json.loads((meta / "direct_url.json").read_text())["dir_info"] == {"editable": True}
+    gauges = next((target / "lib").glob("python*/site-packages/gauges-2.0.dist-info"))
+    assert json.loads((gauges / "direct_url.json").read_text())["dir_info"] == {}  # a plain folder install
     # a second recreate needs no package source for the index packages: holotype's wheel cache has them
     again = run_cli("recreate", tmp_path / "again", "-C", real_project, "--no-index", "--format", "json")
     assert again.code == 0, again.out + again.err
