@@ -215,12 +215,9 @@ def test_a_lazily_imported_dependency_counts_as_used(tmp_path: Path, wheelhouse:
     build_wheel(wheels, "lazyplot", "1.0", module_text="def draw():\n    import gamma\n    return gamma.VERSION\n")
     venv = make_venv(tmp_path / "venv", wheelhouse)
     venv.install("gamma==1.0", "--find-links", str(wheels), "lazyplot")
-    root = tmp_path / "p"
-    write(root / "data" / "a.csv", "x\n1\n")
-    write(root / "run.py", "import os, lazyplot\nos.makedirs('out', exist_ok=True)\n"
-                           "open('out/v.txt', 'w').write(lazyplot.draw())\n")
-    write(root / "holotype.toml", f'python = "{venv.python}"\ndata = ["data"]\nseed = 3\n'
-                                  '[analyses.a]\ncommand = "python run.py"\noutputs = ["out/v.txt"]\n')
+    root = one_analysis_project(tmp_path / "p", "import os, lazyplot\nos.makedirs('out', exist_ok=True)\n"
+                                "open('out/v.txt', 'w').write(lazyplot.draw())\n", ("out/v.txt",),
+                                python=venv.python, seed=3)
     assert run_cli("record", "--no-run", "-C", root).code == 0
     assert not read_lock(root / "holotype.lock").packages["gamma"].used  # the static scan cannot see it
     assert run_cli("record", "-C", root).code == 0

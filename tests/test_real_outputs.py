@@ -80,18 +80,13 @@ def test_shifted_column_padding_passes_and_a_real_change_reports_its_real_size(t
     assert math.isclose(finding["max_abs_err"], 17.787 - 0.084, rel_tol=1e-12)
 
 
-def test_whitespace_exact_keeps_spacing_significant(tmp_path: Path) -> None:
+def test_whitespace_exact_keeps_spacing_significant(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     root = one_analysis_project(tmp_path / "p", "import os, sys\nos.makedirs('out', exist_ok=True)\n"
                                 "open('out/t.txt', 'w').write('a  b' if os.environ.get('WIDE') else 'a b')\n",
                                 ("out/t.txt",), settings='[[rules]]\nmatch = "out/t.txt"\nwhitespace = "exact"\n')
     assert run_cli("record", "-C", root).code == 0
-    import os
-
-    os.environ["WIDE"] = "1"
-    try:
-        assert run_cli("replay", "-C", root).code == 1
-    finally:
-        del os.environ["WIDE"]
+    monkeypatch.setenv("WIDE", "1")
+    assert run_cli("replay", "-C", root).code == 1
 
 
 # ----------------------------------------------------------------------------- timestamps
@@ -159,19 +154,14 @@ def test_binary_content_with_an_unknown_suffix_is_compared_by_bytes(tmp_path: Pa
     assert result.code == 1 and "bytes differ" in result.out
 
 
-def test_a_declared_format_wins_over_the_suffix(tmp_path: Path) -> None:
+def test_a_declared_format_wins_over_the_suffix(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     script = ("import os\nos.makedirs('out', exist_ok=True)\n"
               "open('out/r.dat', 'w').write('1.0\\n' if not os.environ.get('NUDGE') else '1.0000000000001\\n')\n")
     root = one_analysis_project(tmp_path / "p", script, ("out/r.dat",),
                                 settings='[[rules]]\nmatch = "out/r.dat"\nformat = "bytes"\n')
     assert run_cli("record", "-C", root).code == 0
-    import os
-
-    os.environ["NUDGE"] = "1"
-    try:
-        result = run_cli("replay", "-C", root)
-    finally:
-        del os.environ["NUDGE"]
+    monkeypatch.setenv("NUDGE", "1")
+    result = run_cli("replay", "-C", root)
     assert result.code == 1 and 'declared format = "bytes"' in result.out
     bad = write(tmp_path / "q" / "holotype.toml", '[[rules]]\nmatch = "x"\nformat = "spreadsheet"\n')
     refused = run_cli("check", "-C", bad.parent)
@@ -263,20 +253,16 @@ def test_a_truncated_png_is_one_line(tmp_path: Path) -> None:
     assert result.code == 2 and result.err.count("\n") == 1 and "cut.png" in result.err
 
 
-def test_a_failing_image_in_a_replay_leaves_a_difference_picture(tmp_path: Path) -> None:
+def test_a_failing_image_in_a_replay_leaves_a_difference_picture(tmp_path: Path,
+                                                                 monkeypatch: pytest.MonkeyPatch) -> None:
     script = ("import os\nfrom PIL import Image, ImageDraw\nos.makedirs('out', exist_ok=True)\n"
               "im = Image.new('RGB', (200, 100), 'white')\nd = ImageDraw.Draw(im)\n"
               "y = 80 if os.environ.get('MOVE') else 20\nd.rectangle([10, y - 10, 190, y + 10], fill='black')\n"
               "im.save('out/fig.png')\n")
     root = one_analysis_project(tmp_path / "p", script, ("out/fig.png",))
     assert run_cli("record", "-C", root).code == 0
-    import os
-
-    os.environ["MOVE"] = "1"
-    try:
-        result = run_cli("replay", "-C", root, "--format", "json")
-    finally:
-        del os.environ["MOVE"]
+    monkeypatch.setenv("MOVE", "1")
+    result = run_cli("replay", "-C", root, "--format", "json")
     [finding] = [f for f in _output_findings(result.out) if f["severity"] == "fail"]
     picture = Path(finding["message"].split("difference picture: ")[1])
     assert picture.parent == root / ".holotype" / "logs" and picture.exists()
@@ -425,7 +411,7 @@ def test_a_notebook_analysis_without_nbclient_is_one_line(tmp_path: Path, wheelh
 # ----------------------------------------------------------------------------- record only, severity
 
 
-def test_record_only_and_per_output_severity(tmp_path: Path) -> None:
+def test_record_only_and_per_output_severity(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     script = ("import os\nos.makedirs('out', exist_ok=True)\nv = os.environ.get('V', '1')\n"
               "open('out/r.csv', 'w').write('x\\n1\\n')\nopen('out/session.log', 'w').write('run ' + v)\n"
               "from PIL import Image\nImage.new('L', (20, 20), 0 if v == '1' else 255).save('out/fig.png')\n")
@@ -434,13 +420,8 @@ def test_record_only_and_per_output_severity(tmp_path: Path) -> None:
     root = one_analysis_project(tmp_path / "p", script, ("out/r.csv", "out/session.log", "out/fig.png"),
                                 settings=rules)
     assert run_cli("record", "-C", root).code == 0
-    import os
-
-    os.environ["V"] = "2"
-    try:
-        result = run_cli("replay", "-C", root, "--format", "json")
-    finally:
-        del os.environ["V"]
+    monkeypatch.setenv("V", "2")
+    result = run_cli("replay", "-C", root, "--format", "json")
     assert result.code == 0, result.out
     by_subject = {f["subject"]: f for f in _output_findings(result.out)}
     assert by_subject["out/session.log"]["kind"] == "output.recorded_only"
