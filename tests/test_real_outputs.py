@@ -452,3 +452,16 @@ def test_start_suggests_notebooks_anywhere_scripts_with_a_body_and_the_outputs_t
     import tomllib
 
     tomllib.loads(text)  # still valid TOML (the suggestions are comments)
+
+
+def test_twice_leaves_out_what_the_rules_set_aside(tmp_path: Path) -> None:
+    script = ("import os, time\nos.makedirs('out', exist_ok=True)\n"
+              "open('out/session.log', 'w').write('started %r\\n' % time.time())\n"
+              "open('out/summary.txt', 'w').write('R2 0.912\\nTime: %r\\n' % time.time())\n")
+    rules = ('[[rules]]\nmatch = "out/session.log"\nrecord_only = true\n'
+             '[[rules]]\nmatch = "out/summary.txt"\nskip_lines = ["^Time:"]\n')
+    root = one_analysis_project(tmp_path / "p", script, ("out/session.log", "out/summary.txt"), settings=rules)
+    assert run_cli("record", "-C", root).code == 0
+    result = run_cli("replay", "--twice", "-C", root, "--format", "json")
+    assert result.code == 0, result.out
+    assert not [f for f in _json(result.out)["findings"] if f["kind"] == "analysis.nondeterministic"]

@@ -28,8 +28,8 @@ import re
 import time
 from collections.abc import Iterable
 from dataclasses import dataclass, field
-from typing import NamedTuple
 from pathlib import Path
+from typing import NamedTuple
 
 from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
 from holotype.capture.fingerprints import fingerprint_files

@@ -119,7 +119,7 @@ def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, s
         second = seconds.get(result.name)
         unstable: dict[str, Finding] = {}
         if second is not None:
-            unstable = compare_two_runs(result, second) if second.ok else {
+            unstable = compare_two_runs(result, second, config.rulebook) if second.ok else {
                 "": Finding("analysis", result.name, "analysis.failed", f"second run: {second.failure_text()}")}
         if record is not None:
             if record.seed != result.seed:

@@ -7,6 +7,7 @@ from collections.abc import Callable
 from pathlib import Path
 
 from holotype.atomic import write_atomic
+from holotype.compare import formats
 from holotype.compare.outputs import compare_or_unreadable
 from holotype.compare.source import Source
 from holotype.errors import BaselineError, HolotypeError
@@ -15,7 +16,6 @@ from holotype.records import AnalysisRecord, RunResult
 from holotype.store import BaselineStore
 from holotype.tolerance import RuleBook, Tolerance
 
-EXACT = RuleBook(default=Tolerance())
 NONDETERMINISM_CAUSES = ("an unseeded random generator (use holotype.seeds.rng() or set seed_globals = true), "
                          "more than one BLAS/OpenMP thread (set threads = 1), iteration over a set or dict "
                          "of strings, or the time or date in the output")
@@ -98,17 +98,30 @@ def _first_difference(finding: Finding) -> str:
     return finding.message
 
 
-def compare_two_runs(first: RunResult, second: RunResult) -> dict[str, Finding]:
-    """Two fresh runs must agree exactly; one finding per output that differs (nondeterminism), by output."""
+def compare_two_runs(first: RunResult, second: RunResult, rules: RuleBook | None = None) -> dict[str, Finding]:
+    """Two fresh runs must agree exactly; one finding per output that differs (nondeterminism), by output.
+
+    Exactly, apart from what the project's rules set aside on purpose: an output they mark `record_only`
+    is not compared, and lines they skip or mask stay out of the comparison (a timestamp is not
+    nondeterminism); every tolerance is zero."""
     findings: dict[str, Finding] = {}
     for out, produced in sorted(first.outputs.items()):
         again = second.outputs.get(out)
         if again is None or again.sha256 == produced.sha256:
             continue
+        own = rules.for_output(out) if rules is not None else Tolerance()
+        if own.record_only:
+            continue
+        comparer = formats.by_name(own.format) if own.format else formats.for_output(out)
+        image = comparer is not None and "pixel_share" in comparer.honours
+        exact = RuleBook(default=Tolerance(skip_lines=own.skip_lines, mask=own.mask, format=own.format,
+                                           channel_delta=0 if image else None, pixel_share=0.0 if image else None))
         verdict = compare_or_unreadable(out, Source.from_bytes(produced.data, out, f"{out} (first run)"),
-                                        Source.from_bytes(again.data, out, f"{out} (second run)"), EXACT)
-        bad = [f for f in verdict if f.kind != "output.match"]
-        shown = bad[0] if bad else verdict[0]
+                                        Source.from_bytes(again.data, out, f"{out} (second run)"), exact)
+        bad = [f for f in verdict if f.kind not in ("output.match", "output.layout")]
+        if not bad:
+            continue  # equal once what the rules set aside is left out, every value exactly
+        shown = bad[0]
         findings[out] = (Finding("analysis", first.name, "analysis.nondeterministic",
                                 f"nondeterministic: two runs with the same seed wrote different {out}; "
                                 f"{_first_difference(shown)}. Likely causes: {NONDETERMINISM_CAUSES}",

@@ -1,4 +1,4 @@
-"""Seed the global generators again, now: run by a notebook's kernel once it has started, before any cell.
+"""Seed the global generators again, now: run by a notebook's kernel in a first cell of holotype's own.
 
 The kernel's own start-up (sockets, session ids) draws from `random` after holotype's start-up hook
 seeded it, so the cells would otherwise see a state that differs from run to run. Standard library only.
@@ -20,5 +20,3 @@ def reseed():
     if "numpy.random" in sys.modules:
         sys.modules["numpy.random"].seed(seed)
 
-
-reseed()
