@@ -124,7 +124,7 @@ def test_a_look_alike_wheel_is_refused(real_project: Path, tmp_path: Path, wheel
     for wheel in wheelhouse.glob("*.whl"):
         if not wheel.name.startswith("alpha-1.0-"):
             shutil.copy(wheel, other)
-    rebuilt = build_wheel(tmp_path / "rebuild", "alpha", "1.0")
+    rebuilt = build_wheel(tmp_path / "another-build", "alpha", "1.0")
     # the same version, rebuilt: build tag 1 (named so; the file is the same tiny wheel)
     shutil.copy(rebuilt, other / "alpha-1.0-1-py3-none-any.whl")
     rebuilt.unlink()
