@@ -465,3 +465,29 @@ def test_twice_leaves_out_what_the_rules_set_aside(tmp_path: Path) -> None:
     result = run_cli("replay", "--twice", "-C", root, "--format", "json")
     assert result.code == 0, result.out
     assert not [f for f in _json(result.out)["findings"] if f["kind"] == "analysis.nondeterministic"]
+
+
+def _png_declaring(width: int, height: int) -> bytes:
+    """A PNG (ISO/IEC 15948 chunk layout) whose header declares a huge size over a few bytes of pixel data."""
+    import struct
+    import zlib
+
+    def chunk(kind: bytes, body: bytes) -> bytes:
+        return struct.pack(">I", len(body)) + kind + body + struct.pack(">I", zlib.crc32(kind + body))
+
+    header = struct.pack(">IIBBBBB", width, height, 8, 2, 0, 0, 0)
+    return (b"\x89PNG\r\n\x1a\n" + chunk(b"IHDR", header) + chunk(b"IDAT", zlib.compress(b"\0" * 64))
+            + chunk(b"IEND", b""))
+
+
+def test_an_image_declaring_a_huge_size_is_refused_before_decoding(tmp_path: Path) -> None:
+    e = _figure(tmp_path / "e.png")
+    bomb = tmp_path / "bomb.png"
+    bomb.write_bytes(_png_declaring(30_000, 30_000))  # 900 million pixels, 2.7 GB if decoded
+    code = ("import resource, sys\nresource.setrlimit(resource.RLIMIT_AS, (2 << 30, 2 << 30))\n"
+            "from holotype.entry import main\nsys.argv = ['holotype', 'compare', sys.argv[1], sys.argv[2]]\nmain()\n")
+    result = subprocess.run([sys.executable, "-c", code, str(e), str(bomb)], capture_output=True, text=True,
+                            timeout=120)
+    assert result.returncode == 2, result.stderr
+    [line] = result.stderr.splitlines()
+    assert "bomb.png" in line and "30,000 × 30,000 pixels" in line  # the declared size, read from the header

@@ -28,7 +28,7 @@ from holotype.errors import UnreadableOutput
 from holotype.tolerance import IMAGE_DEFAULTS, RuleBook
 
 STRIP_PIXELS = 1 << 20  # pixels per strip (1 Mi: 4 MB as RGBA)
-MAX_PIXELS = 400_000_000  # a larger declared size is refused before decoding (Pillow's own limit is lower)
+MAX_PIXELS = 200_000_000  # a larger declared size is refused before decoding (at most 800 MB decoded, as RGBA)
 PICTURE_PIXELS = 40_000_000  # a difference picture of a larger image is drawn at a reduced scale
 
 
@@ -36,7 +36,7 @@ def _open(src: Source, *, decode: bool = True) -> Any:
     """The image, decoded (or, with decode=False, only its header read: size and mode)."""
     from PIL import Image
 
-    Image.MAX_IMAGE_PIXELS = MAX_PIXELS
+    Image.MAX_IMAGE_PIXELS = None  # holotype's own limit below applies, to the header, before any decoding
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore")  # Pillow's size warning: the limit above is the one that applies

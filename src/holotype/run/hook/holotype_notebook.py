@@ -4,7 +4,8 @@ Runs INSIDE the analysis interpreter (holotype's start-up hook folder is on its 
 notebook-execution library must be installed there: nbclient with nbformat, and ipykernel for the kernel.
 The kernel is always this interpreter (a kernel spec of holotype's own, first on JUPYTER_PATH), started
 with this process' environment: the analysis' seed, `seed_globals` (seeded again by a first cell of
-holotype's own, taken out afterwards), thread settings and SOURCE_DATE_EPOCH apply inside it. Cell timing is not recorded. Standard library only apart from those; Python 3.8 and newer.
+holotype's own, taken out afterwards), thread settings and SOURCE_DATE_EPOCH apply inside it. Cell
+timing is not recorded. Standard library only apart from those; Python 3.8 and newer.
 """
 
 import json
