@@ -37,6 +37,7 @@ from holotype.capture.walk import ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
 from holotype.records import Environment, FileRecord, PackageRecord
 from holotype.safe_files import read_regular
+from holotype.standards.requirements import local_folder
 
 RECORD_LIMIT = 64 << 20  # a RECORD larger than this is not an installer's listing
 TREE_LIMIT = 20_000  # files in one local source folder; a larger folder is not digested (and the lock says so)
@@ -213,17 +214,6 @@ def _source_tree(folder: Path, project: Path, excludes: tuple[str, ...], skip: s
     return kept, None
 
 
-def _local_folder(url: str | None) -> Path | None:
-    if not url or not url.startswith("file://"):
-        return None
-    from urllib.parse import unquote, urlsplit
-
-    path = unquote(urlsplit(url).path)
-    if path.startswith("/~/") or path == "/~":  # written with the home folder hidden
-        path = os.path.expanduser("~" + path[2:])
-    return Path(path)
-
-
 def _identities(site: Path, listing: list[Listed]) -> str:
     """One digest of every listed file's identity (inode, size, times, mode): unchanged files give the same.
 
@@ -308,7 +298,8 @@ def digest_installed(env: Environment, project: Path, *, cache: DigestCache | No
             cache.remember(key, json.dumps({"stamp": stamp, "files": got.files, "edited": list(got.edited)}))
     skipped = set(skip)
     for name, rec in env.packages.items():
-        folder = _local_folder(env.sources.get(name)) if rec.origin.kind in ("editable", "directory") else None
+        url = env.sources.get(name)
+        folder = local_folder(url) if url and rec.origin.kind in ("editable", "directory") else None
         if folder is None:
             continue
         files, note = _source_tree(folder, project, excludes, skipped, rec.top_level, roots.get(name))

@@ -17,7 +17,7 @@ from holotype.findings import Finding, Judgement
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import LockContents, PackageRecord
 from holotype.standards.requirements import local_folder, local_url, requirement_line
-from holotype.standards.wheel_cache import wheel_cache
+from holotype.standards.wheel_cache import is_recorded_wheel, wheel_cache
 from holotype.verify import verify_project
 
 
@@ -106,28 +106,9 @@ def _bundled_wheels(python: str) -> Path:
 
 
 def _matching_wheel(folder: Path, pkg: PackageRecord) -> Path | None:
-    """A wheel of exactly this version (and, when the lock knows them, these tags and build) in `folder`."""
-    from packaging.utils import InvalidWheelFilename, canonicalize_name, parse_wheel_filename
-    from packaging.version import InvalidVersion, Version
-
-    try:
-        wanted = Version(pkg.version)
-    except InvalidVersion:
-        return None
-    for path in sorted(folder.glob("*.whl")) if folder.is_dir() else ():
-        try:
-            name, version, build, tags = parse_wheel_filename(path.name)
-        except (InvalidWheelFilename, InvalidVersion):
-            continue
-        if canonicalize_name(name) != pkg.name or version != wanted:
-            continue
-        if pkg.wheel_tags and {str(t) for t in tags} != set(pkg.wheel_tags):
-            continue
-        found_build = f"{build[0]}{build[1]}" if build else None
-        if (pkg.wheel_tags or pkg.build) and found_build != pkg.build:
-            continue  # another build of the same version (a rebuilt `-1` wheel, say)
-        return path
-    return None
+    """The recorded wheel of `pkg` in `folder` (exact version, and tags and build where the lock has them)."""
+    return next((p for p in sorted(folder.glob("*.whl")) if is_recorded_wheel(pkg, p.name)), None) \
+        if folder.is_dir() else None
 
 
 def _offered(folder: Path, pkg: PackageRecord) -> str:

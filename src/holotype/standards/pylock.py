@@ -12,6 +12,7 @@ from holotype.phrasing import listed
 from holotype.records import LockContents, PackageRecord
 from holotype.safe_files import open_regular
 from holotype.standards.requirements import is_relative, local_folder
+from holotype.standards.wheel_cache import is_recorded_wheel
 
 
 def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
@@ -25,12 +26,9 @@ def _files_for(pkg: PackageRecord, folders: list[Path]) -> list[Path]:
                 continue  # the same file in two folders (a wheelhouse and the cache)
             try:
                 if path.suffix == ".whl":
-                    name, version, build, tags = parse_wheel_filename(path.name)
-                    # only the build that was installed: the lock's wheel tags and build tag, where it has them
-                    if pkg.wheel_tags and {str(t) for t in tags} != set(pkg.wheel_tags):
+                    if not is_recorded_wheel(pkg, path.name):  # only the build that was installed
                         continue
-                    if (pkg.wheel_tags or pkg.build) and (f"{build[0]}{build[1]}" if build else None) != pkg.build:
-                        continue
+                    name, version, _, _ = parse_wheel_filename(path.name)
                 elif path.name.endswith(".tar.gz"):
                     name, version = parse_sdist_filename(path.name)
                 else:

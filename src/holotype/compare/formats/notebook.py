@@ -88,13 +88,13 @@ def compare_notebooks(output: str, expected: Source, actual: Source, rules: Rule
         for (what, e_value), (_, a_value) in zip(e_parts, a_parts):
             if e_value == a_value:
                 if what not in IMAGE_TYPES:
-                    compare_lines(output, e_value.splitlines(), a_value.splitlines(), tol, outcome,
+                    compare_lines(e_value.splitlines(), a_value.splitlines(), tol, outcome,
                                   where_prefix=f"{label}, {what}, ", name=label)
                 continue
             if what in IMAGE_TYPES:
                 _image(output, label, e_value, a_value, rules, outcome)
             else:
-                compare_lines(output, e_value.splitlines(), a_value.splitlines(), tol, outcome,
+                compare_lines(e_value.splitlines(), a_value.splitlines(), tol, outcome,
                               where_prefix=f"{label}, {what}, ", name=label)
     if not outcome.tallies and not outcome.problems:
         outcome.problem("output.match", f"{len(e_cells)} cells compared: their outputs match")

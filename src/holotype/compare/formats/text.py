@@ -47,7 +47,7 @@ def _prepared(lines: list[str], tol: Tolerance, extra_masks: tuple[re.Pattern[st
     return out
 
 
-def _judge_lines(name: str, e_lines: list[tuple[int, str]], a_lines: list[tuple[int, str]], tol: Tolerance,
+def _judge_lines(e_lines: list[tuple[int, str]], a_lines: list[tuple[int, str]], tol: Tolerance,
                  where_prefix: str = "") -> tuple[ColumnJudge, list[tuple[str, str]]]:
     """Judge paired lines; also return the unequal pairs (for the date-and-time hint)."""
     judge_ = ColumnJudge("text", tol)
@@ -92,12 +92,12 @@ def _time_hint(e_lines: list[tuple[int, str]], unequal: list[tuple[str, str]]) -
             "for this output would skip them")
 
 
-def compare_lines(output: str, e_raw: list[str], a_raw: list[str], tol: Tolerance, outcome: Outcome, *,
+def compare_lines(e_raw: list[str], a_raw: list[str], tol: Tolerance, outcome: Outcome, *,
                   extra_masks: tuple[re.Pattern[str], ...] = (), where_prefix: str = "",
                   name: str = "text") -> None:
     """Compare two texts' lines into `outcome` (one tally; a line-count difference is a shape problem)."""
     e_lines, a_lines = _prepared(e_raw, tol, extra_masks), _prepared(a_raw, tol, extra_masks)
-    judge_, unequal = _judge_lines(name, e_lines, a_lines, tol, where_prefix)
+    judge_, unequal = _judge_lines(e_lines, a_lines, tol, where_prefix)
     tally = judge_.result()
     tally.name = name
     outcome.tallies.append(tally)
@@ -114,7 +114,7 @@ def compare_lines(output: str, e_raw: list[str], a_raw: list[str], tol: Toleranc
 def compare_text(output: str, expected: Source, actual: Source, rules: RuleBook,
                  extra_masks: tuple[re.Pattern[str], ...] = ()) -> Outcome:
     outcome = Outcome()
-    compare_lines(output, decode_lines(expected.read_bytes(), expected.label),
+    compare_lines(decode_lines(expected.read_bytes(), expected.label),
                   decode_lines(actual.read_bytes(), actual.label), rules.for_output(output), outcome,
                   extra_masks=extra_masks)
     return outcome
