@@ -115,7 +115,7 @@ def test_demo_end_to_end_then_the_folder_is_a_normal_project(tmp_path: Path, mon
     monkeypatch.setenv("COLUMNS", "300")  # wide enough that no table cell wraps
     folder = tmp_path / "demo"
     result = run_cli("demo", folder)
-    assert result.code == 0, result.err
+    assert result.code == 0, result.out[-6000:] + result.err  # the table the demo refers to
     for words in ("modified: size", "sign flipped as a whole in PC2", "permutation.p_value", "Back to clean",
                   "not a verified one"):
         assert words in result.out
