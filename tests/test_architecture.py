@@ -24,7 +24,7 @@ LAYERS = {
     "holotype.capture": 40, "holotype.compare": 40, "holotype.run": 40,
     "holotype.config": 30, "holotype.config_edit": 30, "holotype.lockfile": 30, "holotype.store": 30,
     "holotype.standards": 30,
-    "holotype.appendix": 25,
+    "holotype.appendix": 25, "holotype.manifests": 25,
     "holotype.records": 20, "holotype.findings": 20, "holotype.tolerance": 20, "holotype.clock": 20,
     "holotype.atomic": 20, "holotype.safe_files": 25,
     "holotype.errors": 10,

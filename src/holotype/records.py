@@ -98,6 +98,16 @@ class FileRecord:
 
 
 @dataclass(frozen=True)
+class FolderRecord:
+    """A data folder recorded as one entry (manifests.py): its files are listed in a store object."""
+
+    path: str = entry(default="", from_key=True)  # project-relative POSIX path of the folder
+    files: int = entry(default=0)
+    bytes: int = entry(default=0)
+    listing: str = entry(default="", digest=True)  # SHA-256 of the listing object (and its name in the store)
+
+
+@dataclass(frozen=True)
 class RuleRecord:
     """One [[rules]] entry as it decided verdicts: its match and the keys it set."""
 
@@ -124,11 +134,19 @@ class OutputRecord:
     tolerance: dict[str, Any] = field(default_factory=dict)
 
 
-def inputs_digest(data: dict[str, FileRecord], inputs: tuple[str, ...]) -> str:
-    """SHA-256 over the sorted (path, digest) of an analysis' inputs: its declared inputs, else all data."""
+def inputs_digest(data: dict[str, FileRecord], inputs: tuple[str, ...],
+                  folders: dict[str, FolderRecord] | None = None) -> str:
+    """SHA-256 over the sorted (path, digest) of an analysis' inputs: its declared inputs, else all data.
+
+    A data folder recorded as one entry counts as (folder + "/", its listing digest), also when a declared
+    input lies inside it: any change in that folder then counts as a change of the input."""
     import hashlib
 
-    chosen = sorted((p, r.sha256 or f"link:{r.target}") for p, r in data.items() if not inputs or p in inputs)
+    chosen = [(p, r.sha256 or f"link:{r.target}") for p, r in data.items() if not inputs or p in inputs]
+    for folder, rec in (folders or {}).items():
+        if not inputs or any(i.startswith(folder + "/") for i in inputs):
+            chosen.append((folder + "/", f"listing:{rec.listing}"))
+    chosen.sort()
     return hashlib.sha256("\n".join(f"{p}\t{d}" for p, d in chosen).encode("utf-8", "surrogateescape")).hexdigest()
 
 
@@ -228,6 +246,8 @@ class LockContents:
     # SOURCE_DATE_EPOCH the analyses ran with (seconds since 1970): replay gives them the same
     source_date_epoch: int | None = entry(default=None, order=3.2)
     data: dict[str, FileRecord] = entry(default_factory=dict, order=7)
+    # folders of at least manifests.FOLDER_THRESHOLD files: one entry each, their files listed in the store
+    data_folders: dict[str, FolderRecord] = entry(default_factory=dict, order=7.5)
     code: dict[str, FileRecord] = entry(default_factory=dict, order=8)
     analyses: dict[str, AnalysisRecord] = entry(default_factory=dict, order=9)
     history: list[HistoryEntry] = entry(default_factory=list, order=10)
@@ -287,3 +307,14 @@ class RunResult:
         if self.refused:
             return "; ".join(f"{out}: {why}" for out, why in sorted(self.refused.items()))
         return "did not write " + ", ".join(self.missing)
+
+
+def stored_objects(lock: LockContents) -> set[str]:
+    """The store objects `lock` refers to: its output baselines and its data folders' listings."""
+    return ({o.sha256 for rec in lock.analyses.values() for o in rec.outputs.values()}
+            | {f.listing for f in lock.data_folders.values()})
+
+
+def data_file_count(lock: LockContents) -> int:
+    """How many data files `lock` records, those inside folder entries included."""
+    return len(lock.data) + sum(f.files for f in lock.data_folders.values())

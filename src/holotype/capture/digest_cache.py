@@ -172,6 +172,37 @@ class DigestCache:
             return None
         return None if row is None else str(row[0])
 
+    def facts(self, keys: list[str]) -> dict[str, str]:
+        """Remembered answers for many keys at once."""
+        if self.conn is None or not keys:
+            return {}
+        found: dict[str, str] = {}
+        try:
+            for start in range(0, len(keys), 900):
+                chunk = keys[start:start + 900]
+                rows = self.conn.execute(f"SELECT key, doc FROM facts WHERE key IN ({','.join('?' * len(chunk))})",
+                                         chunk).fetchall()
+                found.update((str(k), str(d)) for k, d in rows)
+        except sqlite3.DatabaseError:
+            return {}
+        return found
+
+    def remember_many(self, items: list[tuple[str, str]]) -> None:
+        """Remember many answers in one transaction."""
+        if self.conn is None or not items:
+            return
+        now = time.time()
+        try:
+            self.conn.execute("BEGIN IMMEDIATE")
+            self.conn.executemany("INSERT OR REPLACE INTO facts (key, doc, stored) VALUES (?, ?, ?)",
+                                  [(k, d, now) for k, d in items])
+            self.conn.execute("COMMIT")
+        except sqlite3.DatabaseError:
+            try:
+                self.conn.execute("ROLLBACK")
+            except sqlite3.DatabaseError:
+                pass
+
     def remember(self, key: str, doc: str) -> None:
         if self.conn is None:
             return

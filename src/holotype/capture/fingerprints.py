@@ -81,14 +81,14 @@ def sha256_file(path: str | os.PathLike[str], counter: _Counter | None = None) -
     return h.hexdigest()
 
 
-def _hash_stable(path: str, counter: _Counter, before: os.stat_result) -> tuple[str, os.stat_result]:
+def _hash_stable(path: str, counter: _Counter, before: Identity) -> tuple[str, Identity]:
     """Hash, then check the file did not change meanwhile; retry once, then give up loudly."""
     for attempt in range(2):
         if attempt:
-            before = os.stat(path)
+            before = identity_of(os.stat(path))
         digest = sha256_file(path, counter)
-        after = os.stat(path)
-        if (before.st_size, before.st_mtime_ns) == (after.st_size, after.st_mtime_ns):
+        after = identity_of(os.stat(path))
+        if (before[2], before[3]) == (after[2], after[3]):
             return digest, after
     raise _Unstable()
 
@@ -97,10 +97,10 @@ class _Unstable(Exception):
     pass
 
 
-Outcome = tuple[str, os.stat_result] | OSError | _Unstable
+Outcome = tuple[str, Identity] | OSError | _Unstable
 
 
-def _hash_all(items: list[tuple[ProjectFile, os.stat_result]], counter: _Counter, workers: int | None,
+def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, workers: int | None,
               progress: HashProgress | None) -> list[Outcome]:
     """Hash on a few threads that take the next file from a shared queue (linear in the file count)."""
     outcomes: list[Outcome | None] = [None] * len(items)
@@ -142,7 +142,7 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
                       progress: HashProgress | None = None, workers: int | None = None) -> FingerprintResult:
     """Digest every file; links are recorded by their target text; problems are returned, not raised."""
     result = FingerprintResult()
-    to_hash: list[tuple[ProjectFile, os.stat_result]] = []
+    to_hash: list[tuple[ProjectFile, Identity]] = []
     for rel, item in files.items():
         if item.is_link:
             try:
@@ -150,28 +150,29 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
             except OSError as exc:
                 result.problems[rel] = ("unreadable", f"cannot read link: {exc.strerror}")
             continue
-        try:
-            st = os.stat(item.path)
-        except OSError as exc:
-            result.problems[rel] = ("unreadable", f"cannot stat: {exc.strerror}")
-            continue
-        to_hash.append((item, st))
+        ident = item.ident
+        if ident is None:
+            try:
+                ident = identity_of(os.stat(item.path))
+            except OSError as exc:
+                result.problems[rel] = ("unreadable", f"cannot stat: {exc.strerror}")
+                continue
+        to_hash.append((item, ident))
 
-    identities = [identity_of(st) for _, st in to_hash]
-    known: dict[Identity, str] = cache.lookup(identities) if cache else {}
-    pending: list[tuple[ProjectFile, os.stat_result]] = []
+    known: dict[Identity, str] = cache.lookup([ident for _, ident in to_hash]) if cache else {}
+    pending: list[tuple[ProjectFile, Identity]] = []
     records = result.records
-    for (item, st), ident in zip(to_hash, identities):
+    for item, ident in to_hash:
         digest = known.get(ident)
         if digest is not None:
-            records[item.rel] = FileRecord(item.rel, "file", st.st_size, digest)
+            records[item.rel] = FileRecord(item.rel, "file", ident[2], digest)
         else:
-            pending.append((item, st))
+            pending.append((item, ident))
     result.cache_hits = len(to_hash) - len(pending)
 
-    pending.sort(key=lambda pair: pair[1].st_size, reverse=True)  # a giant file must not start last
+    pending.sort(key=lambda pair: pair[1][2], reverse=True)  # a giant file must not start last
     counter = _Counter()
-    total = sum(st.st_size for _, st in pending)
+    total = sum(ident[2] for _, ident in pending)
     fresh: list[tuple[Identity, str]] = []
     if pending:
         if progress is not None:
@@ -179,10 +180,10 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
         outcomes = _hash_all(pending, counter, workers, progress)
         for item, outcome in zip((item for item, _ in pending), outcomes):
             if isinstance(outcome, tuple):
-                digest, st = outcome
-                result.records[item.rel] = FileRecord(item.rel, "file", size=st.st_size, sha256=digest)
+                digest, ident = outcome
+                result.records[item.rel] = FileRecord(item.rel, "file", size=ident[2], sha256=digest)
                 result.files_hashed += 1
-                fresh.append((identity_of(st), digest))
+                fresh.append((ident, digest))
             elif isinstance(outcome, _Unstable):
                 result.problems[item.rel] = ("unstable", "kept changing while being read; "
                                              "stop whatever writes it and record again")

@@ -197,11 +197,16 @@ def _source_tree(folder: Path, project: Path, excludes: tuple[str, ...], skip: s
     inside = root_real in real.parents
     prefix = real.relative_to(root_real).as_posix() + "/" if inside else ""
     walker = ProjectWalker(real, TREE_SKIP, allow_outside=True)  # links are recorded by their text
-    found, _ = walker.collect((".",))
-    inner = [r.resolve().relative_to(real).as_posix() + "/" for r in roots or ()
+    inner = [r.resolve().relative_to(real).as_posix() for r in roots or ()
              if r.resolve() == real or real in r.resolve().parents]
-    if inner and "./" not in inner:
-        found = {rel: item for rel, item in found.items() if rel.startswith(tuple(inner))}
+    if inner and "." not in inner:
+        # only the folders the install puts on the import path are walked: the rest of a source checkout
+        # (its documents, notebooks, a data tree of 100,000 files) is not the package's code
+        found, _ = walker.collect(tuple(inner))
+    else:
+        found, _ = walker.collect((".",))
+    if inner and "." not in inner:
+        pass
     elif imports and any(_importable(rel, imports) for rel in found):
         found = {rel: item for rel, item in found.items() if _importable(rel, imports)}
     kept: dict[str, ProjectFile] = {}

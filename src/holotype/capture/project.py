@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from holotype.capture.data_folders import DataResult, fingerprint_data
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
@@ -15,14 +16,14 @@ from holotype.capture.usage import declared_requirements, mark_used, truthful_re
 from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex
 from holotype.config import Config
 from holotype.errors import ConfigError
-from holotype.records import Environment, NumericStack
+from holotype.records import Environment, FolderRecord, NumericStack
 
 
 @dataclass
 class ProjectCapture:
     environment: Environment
     python: str
-    data: FingerprintResult
+    data: DataResult
     code: FingerprintResult
     code_problems: list[tuple[str, str]] = field(default_factory=list)
     unmatched_data: list[str] = field(default_factory=list)
@@ -49,6 +50,8 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
                                       "an output cannot also be an input the record fingerprints (narrow the "
                                       "pattern, or move the output)", config.source)
     walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, frozenset(outputs))
+    if config.code is None:
+        walker.everything()  # one walk for data and the default code set
     data, unmatched = walker.collect(config.data)
     if config.code is not None:
         code, _ = walker.collect(config.code)
@@ -62,8 +65,13 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
 
 
 def capture_project(config: Config, *, python_override: str | None = None, full: bool = False,
-                    progress: HashProgress | None = None, numerics: bool = True) -> ProjectCapture:
-    """Everything `record` writes and `check` compares, except analysis outputs."""
+                    progress: HashProgress | None = None, numerics: bool = True,
+                    recorded_folders: dict[str, FolderRecord] | None = None,
+                    listings: bool = False) -> ProjectCapture:
+    """Everything `record` writes and `check` compares, except analysis outputs.
+
+    `recorded_folders` (the lock's data folders) lets an unchanged big folder be judged by stat alone;
+    `listings` builds every data folder's listing object for the store (record)."""
     python, how = resolve_python(config.python, config.root, python_override)
     probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
     inspection = start_inspection(python, config.threads) if numerics else None
@@ -73,7 +81,8 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
         scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
         cache = None if full else DigestCache()
         try:
-            data = fingerprint_files(data_files, cache=cache, progress=progress)
+            data = fingerprint_data(data_files, str(config.root), cache=cache, recorded=recorded_folders,
+                                    progress=progress, listings=listings)
             code = fingerprint_files(code_files, cache=cache)
             env = environment_from_probe(probe.result(), config.root, python)
             outputs = {out for a in config.analyses for out in a.outputs}

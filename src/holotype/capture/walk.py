@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import bisect
 import os
 import re
 import stat
@@ -19,12 +20,16 @@ SKIP_FOLDERS = frozenset({
 GLOB_CHARS = frozenset("*?[")
 
 
-@dataclass(frozen=True)
+Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): see digest_cache.py
+
+
+@dataclass(frozen=True, slots=True)
 class ProjectFile:
     rel: str  # project-relative POSIX path
     path: str  # as the OS names it (a str: building a Path per file costs more than the stat)
     is_link: bool
     size: int
+    ident: Identity | None = None  # from the walk's own lstat, so hashing and the cache need no second one
 
 
 @lru_cache(maxsize=512)
@@ -83,6 +88,18 @@ def is_excluded(rel: str, excludes: tuple[str, ...]) -> bool:
     return False
 
 
+class _Excluder:
+    """`is_excluded` for a walk that goes down folder by folder: a folder's own path was already tested
+    when the walk entered it, so each entry tests only its own path (and its name against name patterns)."""
+
+    def __init__(self, excludes: tuple[str, ...]) -> None:
+        self.names = [glob_regex(p.rstrip("/")) for p in excludes if "/" not in p.rstrip("/")]
+        self.paths = [glob_regex(p.rstrip("/")) for p in excludes if "/" in p.rstrip("/")]
+
+    def __call__(self, rel: str, name: str) -> bool:
+        return any(r.match(name) for r in self.names) or any(r.match(rel) for r in self.paths)
+
+
 def _utf8_name(rel: str) -> None:
     """File names are recorded as UTF-8 text; a name the OS gave as other bytes cannot be, so say which."""
     try:
@@ -104,6 +121,9 @@ class ProjectWalker:
         self.excludes = excludes
         self.allow_outside = allow_outside
         self.config_path = config_path
+        self._excluder = _Excluder(excludes)
+        self._everything: dict[str, ProjectFile] | None = None
+        self._keys: list[str] = []
 
     def _rel(self, path: str) -> str:
         return PurePosixPath(Path(os.path.relpath(path, self.root)).as_posix()).as_posix()
@@ -119,6 +139,10 @@ class ProjectWalker:
     def _walk_folder(self, folder: str, out: dict[str, ProjectFile]) -> None:
         # relative names are built by joining strings: os.path.relpath per file is the slow part otherwise
         start_rel = self._rel(folder)
+        if self.excludes and start_rel != "." and is_excluded(start_rel, self.excludes):
+            return
+        excluded = self._excluder if self.excludes else None
+        outputs = self.outputs
         stack = [(folder, "" if start_rel == "." else start_rel + "/")]
         while stack:
             current, prefix = stack.pop()
@@ -129,21 +153,24 @@ class ProjectWalker:
                 continue  # unreadable folder: nothing inside it can be listed
             for entry in entries:
                 full = entry.path
-                rel = prefix + entry.name
-                if (self.excludes and is_excluded(rel, self.excludes)) or rel in self.outputs:
+                name = entry.name
+                rel = prefix + name
+                if (excluded is not None and excluded(rel, name)) or rel in outputs:
                     continue
-                if not entry.name.isascii():
+                if not name.isascii():
                     _utf8_name(rel)
                 try:
                     if entry.is_symlink():
                         self._check_link(full, rel)
                         out[rel] = ProjectFile(rel, full, True, 0)
                     elif entry.is_dir(follow_symlinks=False):
-                        if entry.name in SKIP_FOLDERS or os.path.exists(os.path.join(full, "pyvenv.cfg")):
+                        if name in SKIP_FOLDERS or os.path.exists(full + "/pyvenv.cfg"):
                             continue
                         stack.append((full, rel + "/"))
                     elif entry.is_file(follow_symlinks=False):
-                        out[rel] = ProjectFile(rel, full, False, entry.stat(follow_symlinks=False).st_size)
+                        st = entry.stat(follow_symlinks=False)
+                        out[rel] = ProjectFile(rel, full, False, st.st_size,
+                                               (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
                 except OSError:
                     out[rel] = ProjectFile(rel, full, False, 0)
 
@@ -158,7 +185,30 @@ class ProjectWalker:
         elif stat.S_ISDIR(st.st_mode):
             self._walk_folder(full, out)
         elif stat.S_ISREG(st.st_mode):
-            out[rel] = ProjectFile(rel, full, False, st.st_size)
+            out[rel] = ProjectFile(rel, full, False, st.st_size,
+                                   (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+
+    def everything(self) -> dict[str, ProjectFile]:
+        """Every file of the project the walk sees (skipped folders and excludes left out), walked once."""
+        if self._everything is None:
+            found: dict[str, ProjectFile] = {}
+            self._walk_folder(str(self.root), found)
+            self._everything = dict(sorted(found.items()))
+            self._keys = list(self._everything)
+        return self._everything
+
+    def _from_everything(self, rel: str) -> dict[str, ProjectFile] | None:
+        """The files at or below `rel` as the whole-project walk found them; None when it found none there
+        (a path inside a skipped folder, say), so the caller walks that path itself."""
+        everything = self._everything
+        if everything is None:
+            return None
+        if rel in everything:
+            return {rel: everything[rel]}
+        keys = self._keys
+        start = bisect.bisect_left(keys, rel + "/")
+        end = bisect.bisect_left(keys, rel + "0")  # "0" is the character after "/"
+        return {k: everything[k] for k in keys[start:end]} or None
 
     def collect(self, patterns: tuple[str, ...]) -> tuple[dict[str, ProjectFile], list[str]]:
         """Files matched by `patterns` (files, folders or globs), and the patterns that matched nothing."""
@@ -172,7 +222,12 @@ class ProjectWalker:
                 if not os.path.lexists(full):
                     unmatched.append(pattern)
                     continue
-                self._add_path(full, self._rel(full), out)
+                rel = self._rel(full)
+                known = self._from_everything(rel) if not rel.startswith("..") else None
+                if known is not None:
+                    out.update(known)
+                else:
+                    self._add_path(full, rel, out)
             else:
                 parts = pattern.split("/")
                 fixed = []
@@ -182,7 +237,13 @@ class ProjectWalker:
                     fixed.append(part)
                 base = os.path.join(self.root, *fixed) if fixed else str(self.root)
                 found: dict[str, ProjectFile] = {}
-                if os.path.isdir(base) and not os.path.islink(base):
+                base_rel = "/".join(fixed)
+                known = self._from_everything(base_rel) if self._everything is not None and fixed else None
+                if self._everything is not None and not fixed:
+                    found = dict(self._everything)
+                elif known is not None:
+                    found = known
+                elif os.path.isdir(base) and not os.path.islink(base):
                     self._walk_folder(base, found)
                 regex = glob_regex(pattern)
                 for rel, item in found.items():
@@ -196,7 +257,5 @@ class ProjectWalker:
 
     def code_files(self, data: dict[str, ProjectFile]) -> dict[str, ProjectFile]:
         """Default code set: every .py and .ipynb in the project outside data, skipped folders and excludes."""
-        everything: dict[str, ProjectFile] = {}
-        self._walk_folder(str(self.root), everything)
-        return {rel: f for rel, f in sorted(everything.items())
+        return {rel: f for rel, f in self.everything().items()
                 if rel.endswith((".py", ".ipynb")) and rel not in data and not f.is_link}

@@ -8,7 +8,7 @@ from pathlib import Path
 
 from holotype.capture.project import capture_project
 from holotype.clock import current_user, timestamp
-from holotype.compare.digests import compare_file_sets
+from holotype.compare.digests import compare_data, compare_file_sets
 from holotype.compare.judgement import config_judgement
 from holotype.config import load_config
 from holotype.errors import HolotypeError, InputError
@@ -75,18 +75,19 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
                 analysis.name, analysis.command, derive_seed(seed, analysis.name), outputs, analysis.inputs,
                 old.modules if old else (), old.libraries if old else (), old.observed if old else False,
                 analysis.timeout)
-        capture = capture_project(config, numerics=False)  # the inputs these outputs were made from
+        capture = capture_project(config, numerics=False, listings=True)  # the inputs these outputs were made from
         for data in taken:
             store.baselines.put(data)
-        for area, old_files, new_files in (("data", lock.data, capture.data.records),
-                                           ("code", lock.code, capture.code.records)):
-            for f in compare_file_sets(area, old_files, new_files):
-                findings.append(Finding(area, f.subject, "lockfile.note",
-                                        f"re-recorded with the baselines: {f.message}"))
-        lock.data, lock.code = capture.data.records, capture.code.records
+        for listing in capture.data.listings.values():
+            store.baselines.put(listing)
+        changed = compare_data(store.baselines, lock.data, lock.data_folders, capture.data.records,
+                               capture.data.folders, capture.data.folder_files)
+        for f in changed + compare_file_sets("code", lock.code, capture.code.records):
+            findings.append(Finding(f.area, f.subject, "lockfile.note", f"re-recorded with the baselines: {f.message}"))
+        lock.data, lock.data_folders, lock.code = capture.data.records, capture.data.folders, capture.code.records
         for analysis in analyses:  # the adopted outputs were made from the data as it is now
             updated[analysis.name] = replace(updated[analysis.name],
-                                             made_from=inputs_digest(lock.data, analysis.inputs))
+                                             made_from=inputs_digest(lock.data, analysis.inputs, lock.data_folders))
         lock.analyses = updated
         lock.project_seed = seed
         lock.judgement = config_judgement(config)  # what judged the adopted outputs, logged with the reason

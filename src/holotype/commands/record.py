@@ -19,7 +19,16 @@ from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
-from holotype.records import AnalysisRecord, Change, HistoryEntry, LockContents, OutputRecord, inputs_digest
+from holotype.records import (
+    AnalysisRecord,
+    Change,
+    HistoryEntry,
+    LockContents,
+    OutputRecord,
+    data_file_count,
+    inputs_digest,
+    stored_objects,
+)
 from holotype.run.events import RunEvents
 from holotype.run.plan import make_plan
 from holotype.run.runner import Runner, make_runner
@@ -61,7 +70,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         store.prepare()
         config, new_seed = ensure_seed(config)
         assert config.seed is not None
-        capture = capture_project(config, python_override=python, progress=hash_progress)
+        capture = capture_project(config, python_override=python, progress=hash_progress, listings=True)
         findings: list[Finding] = []
         for rel, (kind, message) in capture.data.problems.items():
             findings.append(Finding("data", rel, f"data.{kind}", message))
@@ -98,7 +107,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                                   and m != "sitecustomize"),
                     libraries=tuple(sorted({lib.key for lib in libraries_from_info(result.libraries or ())})),
                     observed=result.modules is not None,
-                    made_from=inputs_digest(capture.data.records, analysis.inputs))
+                    made_from=inputs_digest(capture.data.records, analysis.inputs, capture.data.folders))
                 findings.append(Finding("analysis", result.name, "lockfile.note",
                                         f"ran in {result.seconds:.1f}s with seed {result.seed}; "
                                         f"{len(outputs)} output(s) captured"))
@@ -109,7 +118,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                     analyses[name] = AnalysisRecord(name, a.command, derive_seed(config.seed, name), rec.outputs,
                                                     a.inputs, rec.modules, rec.libraries, rec.observed, a.timeout,
                                                     rec.made_from)
-                    if rec.made_from and rec.made_from != inputs_digest(capture.data.records, a.inputs):
+                    if rec.made_from and rec.made_from != inputs_digest(capture.data.records, a.inputs,
+                                                                               capture.data.folders):
                         findings.append(Finding("analysis", name, "analysis.baselines_older",
                                                 "its baselines were made from other data than the data recorded "
                                                 "now (record --no-run keeps them); replay and adopt, or record "
@@ -131,6 +141,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                              notes=("nothing written: the lock and baselines are unchanged",))
         for data in pending:
             store.baselines.put(data)
+        for listing in capture.data.listings.values():
+            store.baselines.put(listing)
         seed_note = None
         if new_seed and config.source is not None:  # written only now that the record succeeded
             add_seed(config.source, config.seed)
@@ -147,6 +159,7 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
             project_seed=config.seed,
             source_date_epoch=epoch,
             data=capture.data.records,
+            data_folders=capture.data.folders,
             code=capture.code.records,
             analyses=analyses,
             history=list(old.history) if old is not None else [],
@@ -155,12 +168,11 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                                          reason="holotype record" + ("" if run else " --no-run"),
                                          analyses=tuple(sorted(analyses)), changes=_changes(old, analyses)))
         write_lock(root / LOCK_NAME, lock)
-        referenced = {o.sha256 for rec in analyses.values() for o in rec.outputs.values()}
-        stale = len(store.baselines.unreferenced(referenced))
+        stale = len(store.baselines.unreferenced(stored_objects(lock)))
     notes = [n for n in (seed_note,) if n]
     used = sum(p.used for p in lock.packages.values())
     notes.append(f"wrote {LOCK_NAME}: Python {lock.interpreter.version}, {len(lock.packages)} packages "
-                 f"({used} used), {len(lock.data)} data files, {len(lock.code)} code files, "
+                 f"({used} used), {data_file_count(lock):,} data files, {len(lock.code)} code files, "
                  f"{len(lock.analyses)} analyses; the record is in its history")
     if stale:
         notes.append(f"{stale} baseline object(s) are no longer referenced; 'holotype tidy' lists them")

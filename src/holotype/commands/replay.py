@@ -88,7 +88,8 @@ def _not_exact(f: Finding) -> bool:
 def _with_candidates(findings: list[Finding], moved: list[tuple[str, Finding]], capture: ProjectCapture,
                      lock: LockContents, *, project_seed: int) -> list[Finding]:
     """Attach to each moved output the recorded differences that can move its analysis."""
-    now = Now(capture.environment, capture.data.records, capture.code.records, capture.numerics, project_seed)
+    now = Now(capture.environment, capture.data.records, capture.code.records, capture.numerics, project_seed,
+              capture.data.folders)
     causes = {name: tuple(candidate_causes(name, lock, now)) for name in {n for n, _ in moved}}
     by_finding = {id(f): causes[name] for name, f in moved}
     return [replace(f, candidates=by_finding[id(f)]) if id(f) in by_finding else f for f in findings]
@@ -135,7 +136,8 @@ def _run_and_judge(root: Path, config: Config, lock: LockContents, plan: Plan, s
     capture: ProjectCapture | None = None
     if moved or failed:  # only then: a replay that reproduces byte for byte costs no capture
         try:
-            capture = capture_project(config, python_override=python)  # the environment now
+            capture = capture_project(config, python_override=python,  # the environment now
+                                      recorded_folders=lock.data_folders)
         except HolotypeError as exc:  # the outputs' verdict stands; say what could not be compared
             warnings += (f"the environment was not compared with the record: {exc.message}",)
     if capture is not None:

@@ -7,6 +7,7 @@ from pathlib import Path
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock
+from holotype.records import stored_objects
 from holotype.store import ProjectStore
 
 
@@ -18,7 +19,7 @@ def tidy_store(root: Path, *, remove: bool = False) -> Judgement:
     store = ProjectStore(root)
     with store.one_writer():
         lock = read_lock(root / LOCK_NAME)
-        referenced = {o.sha256 for rec in lock.analyses.values() for o in rec.outputs.values()}
+        referenced = stored_objects(lock)
         stale = store.baselines.unreferenced(referenced)
         findings = []
         freed = 0

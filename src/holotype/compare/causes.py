@@ -14,10 +14,10 @@ The order follows what is known to matter most, most specific first:
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from holotype.compare.digests import compare_file_sets
-from holotype.records import AnalysisRecord, Environment, FileRecord, LockContents, NumericStack
+from holotype.records import AnalysisRecord, Environment, FileRecord, FolderRecord, LockContents, NumericStack
 
 
 @dataclass(frozen=True)
@@ -29,6 +29,17 @@ class Now:
     code: dict[str, FileRecord]
     numerics: NumericStack | None
     project_seed: int
+    data_folders: dict[str, FolderRecord] = field(default_factory=dict)
+
+
+def _as_files(files: dict[str, FileRecord], folders: dict[str, FolderRecord],
+              inputs: set[str]) -> dict[str, FileRecord]:
+    """An analysis' inputs (all data when it declares none), a folder entry standing as one file `folder/`."""
+    out = {p: r for p, r in files.items() if not inputs or p in inputs}
+    for folder, rec in folders.items():
+        if not inputs or any(i.startswith(folder + "/") for i in inputs):
+            out[folder + "/"] = FileRecord(folder + "/", "file", rec.bytes, rec.listing)
+    return out
 
 
 def used_distributions(analysis: AnalysisRecord, lock: LockContents) -> tuple[list[str], list[str]]:
@@ -69,8 +80,8 @@ def candidate_causes(name: str, lock: LockContents, now: Now) -> list[str]:
         return []
     out: list[str] = []
     inputs = set(analysis.inputs)
-    old_data = {p: r for p, r in lock.data.items() if not inputs or p in inputs}
-    new_data = {p: r for p, r in now.data.items() if not inputs or p in inputs}
+    old_data = _as_files(lock.data, lock.data_folders, inputs)
+    new_data = _as_files(now.data, now.data_folders, inputs)
     for f in compare_file_sets("data", old_data, new_data):
         if f.kind != "data.added" or not inputs:
             out.append(f"data {f.subject}: {f.message}")

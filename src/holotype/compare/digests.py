@@ -2,8 +2,14 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
+from holotype.errors import BaselineError, LockfileError
 from holotype.findings import Finding
-from holotype.records import FileRecord
+from holotype.lockfile import LOCK_NAME
+from holotype.manifests import MAX_LISTING_BYTES, decode_listing
+from holotype.records import FileRecord, FolderRecord
+from holotype.store import BASELINE_FOLDER, STORE_FOLDER, BaselineStore
 
 
 def _size_text(n: int) -> str:
@@ -60,4 +66,57 @@ def compare_file_sets(area: str, old: dict[str, FileRecord], new: dict[str, File
     for p in sorted(added):
         if p not in renamed:
             out.append(Finding(area, p, f"{area}.added", "new file inside a tracked location", None, new[p].sha256))
+    return out
+
+
+def recorded_listing(store: BaselineStore, folder: str, rec: FolderRecord) -> dict[str, FileRecord]:
+    """The files of a recorded data folder, from its listing object; LockfileError when it cannot be read."""
+    where = f"object {rec.listing[:12]}… in {STORE_FOLDER}/{BASELINE_FOLDER}"
+    try:
+        raw = store.get(rec.listing, MAX_LISTING_BYTES)
+    except BaselineError as exc:
+        detail = "is missing" if "missing" in exc.detail else f"cannot be used ({exc.detail})"
+        raise LockfileError(f"the listing of data folder '{folder}' ({where}) {detail}; the lock cannot be judged "
+                            "without it (restore .holotype/baselines from version control, or record again)",
+                            Path(LOCK_NAME)) from None
+    files = decode_listing(raw, folder, where)
+    if len(files) != rec.files:
+        raise LockfileError(f"the listing of data folder '{folder}' ({where}) holds {len(files):,} files, the lock "
+                            f"says {rec.files:,}", Path(LOCK_NAME))
+    return files
+
+
+def compare_data(store: BaselineStore, old_files: dict[str, FileRecord], old_folders: dict[str, FolderRecord],
+                 new_files: dict[str, FileRecord], new_folders: dict[str, FolderRecord],
+                 new_folder_files: dict[str, dict[str, FileRecord]],
+                 problems: dict[str, tuple[str, str]] | None = None, area: str = "data") -> list[Finding]:
+    """Findings for the data, folder entries included: a folder with the same listing on both sides is equal
+    without opening anything; every other one is compared file by file, so findings name the files (and are
+    the same whichever side lists a folder as one entry)."""
+    old, new = dict(old_files), dict(new_files)
+    for folder in sorted(set(old_folders) | set(new_folders)):
+        a, b = old_folders.get(folder), new_folders.get(folder)
+        if a is not None and b is not None and a.listing == b.listing:
+            continue
+        if a is not None:
+            old.update(recorded_listing(store, folder, a))
+        if b is not None:
+            new.update(new_folder_files.get(folder, {}))
+    return compare_file_sets(area, old, new, problems)
+
+
+def missing_listings(store: BaselineStore, folders: dict[str, FolderRecord]) -> list[Finding]:
+    """A data folder whose listing object is not in the store: the lock is incomplete (was .holotype/ committed?)."""
+    return [Finding("data", folder + "/", "data.listing",
+                    f"its listing ({rec.files:,} files) {rec.listing[:12]}… is missing from "
+                    f"{STORE_FOLDER}/{BASELINE_FOLDER} (was .holotype/ committed?); a change inside it could not be "
+                    "named file by file", rec.listing, None)
+            for folder, rec in sorted(folders.items()) if not store.has(rec.listing)]
+
+
+def as_entries(files: dict[str, FileRecord], folders: dict[str, FolderRecord]) -> dict[str, FileRecord]:
+    """Files and folder entries in one mapping, a folder standing as `folder/` with its listing digest (for
+    summaries that need not name each file: a diff of two locks, candidate causes)."""
+    out = dict(files)
+    out.update({f + "/": FileRecord(f + "/", "file", rec.bytes, rec.listing) for f, rec in folders.items()})
     return out

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from dataclasses import replace
 
-from holotype.compare.digests import compare_file_sets
+from holotype.compare.digests import as_entries, compare_file_sets
 from holotype.compare.environment import compare_interpreter, compare_packages, compare_platform
 from holotype.compare.judgement import compare_judgement, rulebook_of
 from holotype.compare.numerics import compare_numerics
@@ -52,11 +52,13 @@ def diff_locks(a: LockContents, b: LockContents, a_name: str = "A", b_name: str 
     outputs = [out for rec in (*a.analyses.values(), *b.analyses.values()) for out in rec.outputs]
     findings += compare_judgement(a.judgement, b.judgement, sorted(set(outputs)), then=f"in {a_name}",
                                   now=f"in {b_name}")
-    files = compare_file_sets("data", a.data, b.data) + compare_file_sets("code", a.code, b.code)
+    files = (compare_file_sets("data", as_entries(a.data, a.data_folders), as_entries(b.data, b.data_folders))
+             + compare_file_sets("code", a.code, b.code))
     reasons = [f"{e.reason} ({e.who}, {e.when})" for e in b.history[len(a.history):]]
     # re-recorded by a logged record or adopt whose baselines were remade from these very data: said, with
     # why, not a failure (a `record --no-run` that kept baselines made from other data still fails)
-    remade = bool(b.analyses) and all(rec.made_from is not None and rec.made_from == inputs_digest(b.data, rec.inputs)
+    remade = bool(b.analyses) and all(rec.made_from is not None and rec.made_from == inputs_digest(b.data, rec.inputs,
+                                                                                                    b.data_folders)
                                       for rec in b.analyses.values())
     if reasons and remade:
         files = [replace(f, kind="lockfile.logged", message=f"{f.message}; logged: {'; '.join(reasons)}")

@@ -37,6 +37,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "data.renamed": "fail",
     "data.unreadable": "fail",
     "data.unstable": "fail",
+    "data.listing": "fail",
     "code.changed": "warn",
     "code.missing": "warn",
     "code.added": "warn",

@@ -110,7 +110,10 @@ def render_methods_html(prov: Provenance) -> str:
              _table(["file", "bytes", "SHA-256"],
                     [[f"<code>{escape(path)}</code>", f"{rec.size:,}",
                       f"<code>{escape(rec.sha256 or 'link to ' + str(rec.target))}</code>"]
-                     for path, rec in sorted(lock.data.items())]),
+                     for path, rec in sorted(lock.data.items())]
+                    + [[f"<code>{escape(path)}/</code> ({folder.files:,} files)", f"{folder.bytes:,}",
+                        f"listing <code>{folder.listing}</code>"]
+                       for path, folder in sorted(lock.data_folders.items())]),
              "<h2>Seeds</h2>",
              f"<p>Project seed {lock.project_seed}; each analysis seed is the first four bytes (big-endian) of "
              "SHA-256 of &quot;&lt;project seed&gt;/&lt;analysis name&gt;&quot;.</p>",

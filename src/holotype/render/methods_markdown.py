@@ -58,6 +58,8 @@ def render_methods_markdown(prov: Provenance) -> str:
     for path, rec in sorted(lock.data.items()):
         digest = rec.sha256 if rec.kind == "file" else f"symbolic link to {rec.target}"
         out.append(f"| `{cell(path)}` | {rec.size:,} | `{cell(digest)}` |")
+    for path, folder in sorted(lock.data_folders.items()):
+        out.append(f"| `{cell(path)}/` ({folder.files:,} files) | {folder.bytes:,} | listing `{folder.listing}` |")
     out += ["", "## Seeds", "", f"Project seed: {lock.project_seed}. Each analysis seed is the first four bytes "
             "(big-endian) of SHA-256 of \"<project seed>/<analysis name>\".", ""]
     out += [f"- {cell(name)}: {rec.seed}" for name, rec in sorted(lock.analyses.items())]

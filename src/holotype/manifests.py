@@ -1,0 +1,141 @@
+"""Big data folders in the lock: which folders are listed as one entry, and the listing object's format.
+
+A project with few data files lists each one in holotype.lock (a one-file change is a one-line diff). A
+folder that holds at least `FOLDER_THRESHOLD` files is recorded as one `[data_folders."…"]` entry: its file
+count, total size and the SHA-256 of its listing. The listing itself (path, size, SHA-256 of every file) is
+an object in the baseline store, content-addressed by that same SHA-256, so the lock stays small and is
+read fast, and the store can still name every file that changed.
+
+Which folders: deepest first, a folder becomes an entry when it and its subfolders hold at least
+`FOLDER_THRESHOLD` files not already in a deeper entry. A file belongs to the deepest entry above it.
+The rule depends only on the paths, so record and check group the same tree the same way.
+
+Listing format (uncompressed; the store gzips it): the line `holotype listing 1\\n`, then one record per
+file in path order, each of four fields ended by NUL: kind (`f` file, `l` symbolic link), SHA-256 (or the
+link's text), size in decimal, project-relative path. NUL is the one byte no path or link text can hold;
+splitting on it parses a listing of 100,000 files in milliseconds.
+"""
+
+from __future__ import annotations
+
+import hashlib
+from collections.abc import Iterable
+
+from holotype.errors import LockfileError
+from holotype.records import FileRecord, FolderRecord
+
+FOLDER_THRESHOLD = 1000  # files; below it a folder's files are listed one by one in the lock
+MAGIC = b"holotype listing 1\n"
+MAX_LISTING_BYTES = 1 << 31  # 2 GiB of listing is some 10 million files: more is not a listing holotype wrote
+
+
+def parent_of(rel: str) -> str:
+    return rel.rpartition("/")[0]
+
+
+def choose_folders(paths: Iterable[str], threshold: int = FOLDER_THRESHOLD) -> set[str]:
+    """The folders (project-relative) to record as one entry each; the project's top level never is one."""
+    direct: dict[str, int] = {}
+    for rel in paths:
+        folder = parent_of(rel)
+        direct[folder] = direct.get(folder, 0) + 1
+    pending = dict(direct)
+    # every ancestor of a folder with files takes part, so counts can flow up through empty levels
+    for folder in list(direct):
+        while folder:
+            folder = parent_of(folder)
+            pending.setdefault(folder, 0)
+    chosen: set[str] = set()
+    for folder in sorted(pending, key=lambda f: f.count("/") + (1 if f else 0), reverse=True):
+        if folder and pending[folder] >= threshold:
+            chosen.add(folder)
+        elif folder:
+            up = parent_of(folder)
+            pending[up] += pending[folder]
+    return chosen
+
+
+def folder_of(rel: str, chosen: set[str]) -> str | None:
+    """The deepest chosen folder holding `rel`, or None when it is listed on its own."""
+    if not chosen:
+        return None
+    folder = parent_of(rel)
+    while folder:
+        if folder in chosen:
+            return folder
+        folder = parent_of(folder)
+    return None
+
+
+def split_by_folder(records: dict[str, FileRecord], chosen: set[str]) -> tuple[
+        dict[str, FileRecord], dict[str, dict[str, FileRecord]]]:
+    """The records listed one by one, and the records of each chosen folder."""
+    loose: dict[str, FileRecord] = {}
+    grouped: dict[str, dict[str, FileRecord]] = {f: {} for f in chosen}
+    for rel, rec in records.items():
+        folder = folder_of(rel, chosen)
+        if folder is None:
+            loose[rel] = rec
+        else:
+            grouped[folder][rel] = rec
+    return loose, grouped
+
+
+def encode_listing(records: dict[str, FileRecord]) -> bytes:
+    """The listing object's bytes for these records (sorted by path, so equal sets give equal bytes)."""
+    parts = [MAGIC]
+    for rel in sorted(records):
+        rec = records[rel]
+        if rec.kind == "symlink":
+            fields = (b"l", (rec.target or "").encode("utf-8", "surrogateescape"), b"0")
+        else:
+            fields = (b"f", (rec.sha256 or "").encode("ascii"), str(rec.size).encode("ascii"))
+        parts.append(b"\0".join((*fields, rel.encode("utf-8", "surrogateescape"))) + b"\0")
+    return b"".join(parts)
+
+
+def folder_record(records: dict[str, FileRecord]) -> tuple[FolderRecord, bytes]:
+    """The lock entry for a folder holding `records`, and its listing object's bytes."""
+    raw = encode_listing(records)
+    total = sum(r.size for r in records.values() if r.kind == "file")
+    return FolderRecord(files=len(records), bytes=total, listing=hashlib.sha256(raw).hexdigest()), raw
+
+
+def decode_listing(raw: bytes, folder: str, where: str) -> dict[str, FileRecord]:
+    """The records of a listing object; anything not exactly as holotype writes it is a LockfileError."""
+    def bad(why: str) -> LockfileError:
+        return LockfileError(f"the listing of data folder '{folder}' ({where}) {why}; the lock cannot be judged "
+                             "without it (restore .holotype/baselines from version control, or record again)")
+
+    if not raw.startswith(MAGIC):
+        raise bad("is not a holotype listing")
+    fields = raw[len(MAGIC):].split(b"\0")
+    if fields[-1] != b"" or (len(fields) - 1) % 4:
+        raise bad("is truncated")
+    out: dict[str, FileRecord] = {}
+    prefix = folder + "/"
+    try:
+        for i in range(0, len(fields) - 1, 4):
+            kind, value, size, path = fields[i:i + 4]
+            rel = path.decode("utf-8", "surrogateescape")
+            if not rel.startswith(prefix):
+                raise bad(f"names '{rel[:200]}', which is not inside the folder")
+            if kind == b"f":
+                digest = value.decode("ascii")
+                if len(digest) != 64:
+                    raise bad(f"holds a malformed digest for '{rel[:200]}'")
+                out[rel] = FileRecord(rel, "file", int(size), digest)
+            elif kind == b"l":
+                out[rel] = FileRecord(rel, "symlink", target=value.decode("utf-8", "surrogateescape"))
+            else:
+                raise bad(f"holds an unknown entry kind for '{rel[:200]}'")
+    except (ValueError, UnicodeDecodeError):
+        raise bad("holds a malformed entry") from None
+    return out
+
+
+def with_folders(data: dict[str, FileRecord], folders: dict[str, FolderRecord]) -> dict[str, str]:
+    """(path, digest) of every data entry, a folder entry standing for its files: what identifies the data."""
+    out = {p: (r.sha256 or f"link:{r.target}") for p, r in data.items()}
+    out.update({f + "/": f"listing:{rec.listing}" for f, rec in folders.items()})
+    return out
