@@ -19,6 +19,7 @@ splitting on it parses a listing of 100,000 files in milliseconds.
 from __future__ import annotations
 
 import hashlib
+from collections import Counter
 from collections.abc import Iterable
 
 from holotype.errors import LockfileError
@@ -35,10 +36,7 @@ def parent_of(rel: str) -> str:
 
 def choose_folders(paths: Iterable[str], threshold: int = FOLDER_THRESHOLD) -> set[str]:
     """The folders (project-relative) to record as one entry each; the project's top level never is one."""
-    direct: dict[str, int] = {}
-    for rel in paths:
-        folder = parent_of(rel)
-        direct[folder] = direct.get(folder, 0) + 1
+    direct = Counter(rel.rpartition("/")[0] for rel in paths)
     pending = dict(direct)
     # every ancestor of a folder with files takes part, so counts can flow up through empty levels
     for folder in list(direct):
@@ -65,20 +63,6 @@ def folder_of(rel: str, chosen: set[str]) -> str | None:
             return folder
         folder = parent_of(folder)
     return None
-
-
-def split_by_folder(records: dict[str, FileRecord], chosen: set[str]) -> tuple[
-        dict[str, FileRecord], dict[str, dict[str, FileRecord]]]:
-    """The records listed one by one, and the records of each chosen folder."""
-    loose: dict[str, FileRecord] = {}
-    grouped: dict[str, dict[str, FileRecord]] = {f: {} for f in chosen}
-    for rel, rec in records.items():
-        folder = folder_of(rel, chosen)
-        if folder is None:
-            loose[rel] = rec
-        else:
-            grouped[folder][rel] = rec
-    return loose, grouped
 
 
 def encode_listing(records: dict[str, FileRecord]) -> bytes:

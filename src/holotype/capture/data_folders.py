@@ -13,6 +13,7 @@ import hashlib
 import json
 import os
 import time
+from array import array
 from dataclasses import dataclass, field
 
 from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
@@ -41,18 +42,13 @@ class DataResult(FingerprintResult):
 
 def _stamp(files: list[ProjectFile]) -> str:
     """One digest of the files' paths and identities; "" when one changed too recently to trust its times."""
-    newest = 0
-    h = hashlib.sha256()
-    for f in files:
-        ident = f.ident
-        if ident is None:
-            h.update(f"{f.rel}\0link\n".encode("utf-8", "surrogateescape"))
-            continue
-        newest = max(newest, ident[3], ident[4])
-        h.update(f"{f.rel}\0{ident[0]}:{ident[1]}:{ident[2]}:{ident[3]}:{ident[4]}\n".encode(
-            "utf-8", "surrogateescape"))
+    idents = [f.ident or (-1, -1, -1, -1, -1) for f in files]  # a link: its text is read, not stat-ed
+    numbers = array("q", [n for ident in idents for n in ident])
+    newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
     if time.time_ns() - newest < RACY_SECONDS * 1e9:
         return ""
+    h = hashlib.sha256("\0".join(f.rel for f in files).encode("utf-8", "surrogateescape"))
+    h.update(numbers.tobytes())
     return h.hexdigest()
 
 
@@ -65,8 +61,12 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
     chosen = choose_folders(files)
     groups: dict[str, list[ProjectFile]] = {f: [] for f in chosen}
     loose: dict[str, ProjectFile] = {}
+    entry_of: dict[str, str | None] = {}
     for rel, item in files.items():
-        folder = folder_of(rel, chosen)
+        parent = rel.rpartition("/")[0]
+        folder = entry_of.get(parent, "")
+        if folder == "":
+            folder = entry_of[parent] = folder_of(rel, chosen)
         if folder is None:
             loose[rel] = item
         else:
@@ -95,7 +95,8 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
     out.files_hashed, out.bytes_hashed, out.cache_hits = digests.files_hashed, digests.bytes_hashed, digests.cache_hits
     per_folder: dict[str, dict[str, FileRecord]] = {}
     for rel, rec in digests.records.items():
-        folder = folder_of(rel, chosen)
+        parent = rel.rpartition("/")[0]
+        folder = entry_of[parent] if parent in entry_of else folder_of(rel, chosen)
         if folder is None:
             out.records[rel] = rec
         else:

@@ -100,9 +100,80 @@ class _Unstable(Exception):
 Outcome = tuple[str, Identity] | OSError | _Unstable
 
 
+SMALL = 64 * 1024  # many files up to this size go to worker processes (for them, the per-file work dominates)
+PROCESS_MIN_FILES = 4000  # fewer small files than this: threads (a worker process costs some 50 ms to start)
+BATCH = 1000
+
+
+def digest_batch(batch: list[tuple[str, Identity]]) -> list[str | tuple[str, object, object]]:
+    """Digest small files in a worker process. Each answer is the digest (the file kept the identity it was
+    walked with: the usual case, and cheap to send back), or ("ok", digest, identity), ("os", errno, text)
+    or ("unstable", 0, 0)."""
+    out: list[str | tuple[str, object, object]] = []
+    counter = _Counter()
+    for path, before in batch:
+        try:
+            digest, after = _hash_stable(path, counter, before)
+            out.append(digest if after == before else ("ok", digest, after))
+        except _Unstable:
+            out.append(("unstable", 0, 0))
+        except OSError as exc:
+            out.append(("os", exc.errno, exc.strerror))
+    return out
+
+
+def _hash_in_processes(items: list[tuple[ProjectFile, Identity]], workers: int, counter: _Counter,
+                       progress: HashProgress | None) -> list[Outcome]:
+    """Many small files: Python's per-file work holds the GIL, so batches go to worker processes."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor
+
+    methods = multiprocessing.get_all_start_methods()
+    context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
+    outcomes: list[Outcome] = []
+    batches = [[(item.path, ident) for item, ident in items[i:i + BATCH]] for i in range(0, len(items), BATCH)]
+    done = 0
+    with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
+        for batch, answers in zip(batches, pool.map(digest_batch, batches)):
+            for (_, before), answer in zip(batch, answers):
+                if isinstance(answer, str):
+                    outcomes.append((answer, before))
+                    counter.add(before[2])
+                    continue
+                kind, a, b = answer
+                if kind == "ok":
+                    assert isinstance(a, str) and isinstance(b, tuple)
+                    outcomes.append((a, b))
+                    counter.add(b[2])
+                elif kind == "unstable":
+                    outcomes.append(_Unstable())
+                else:
+                    assert isinstance(a, int) and isinstance(b, str)
+                    outcomes.append(OSError(a, b))
+            done += len(batch)
+            if progress is not None:
+                progress.advance(counter.bytes, done)
+    return outcomes
+
+
 def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, workers: int | None,
               progress: HashProgress | None) -> list[Outcome]:
-    """Hash on a few threads that take the next file from a shared queue (linear in the file count)."""
+    """Hash on a few threads that take the next file from a shared queue (linear in the file count); the
+    small files go to worker processes when there are many of them."""
+    count = max(1, min(workers or os.cpu_count() or 1, len(items)))
+    small_from = next((i for i, (_, ident) in enumerate(items) if ident[2] <= SMALL), len(items))
+    if count > 1 and len(items) - small_from >= PROCESS_MIN_FILES:  # items come largest first
+        try:
+            tail = _hash_in_processes(items[small_from:], count, counter, progress)
+        except (OSError, RuntimeError, ImportError):
+            tail = None  # no worker processes here (a sandbox, say): threads do it all
+        if tail is not None:
+            head = _hash_all(items[:small_from], counter, workers, None) if small_from else []
+            if progress is not None:
+                progress.end()
+            return head + tail
+    if small_from == 0 or count == 1:
+        count = 1  # small files only: one thread (two only fight over the GIL)
     outcomes: list[Outcome | None] = [None] * len(items)
     queue = deque(range(len(items)))
     done = [0]
@@ -122,7 +193,6 @@ def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, work
             with lock:
                 done[0] += 1
 
-    count = max(1, min(workers or os.cpu_count() or 1, len(items)))
     threads = [threading.Thread(target=work, name=f"holotype-hash-{i}", daemon=True) for i in range(count)]
     for t in threads:
         t.start()

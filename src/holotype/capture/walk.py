@@ -214,6 +214,7 @@ class ProjectWalker:
         """Files matched by `patterns` (files, folders or globs), and the patterns that matched nothing."""
         out: dict[str, ProjectFile] = {}
         unmatched: list[str] = []
+        sorted_already = False
         for pattern in patterns:
             before = len(out)
             pattern = pattern.rstrip("/") or "."
@@ -226,6 +227,7 @@ class ProjectWalker:
                 known = self._from_everything(rel) if not rel.startswith("..") else None
                 if known is not None:
                     out.update(known)
+                    sorted_already = True
                 else:
                     self._add_path(full, rel, out)
             else:
@@ -253,6 +255,8 @@ class ProjectWalker:
                         out[rel] = item
             if len(out) == before and pattern not in unmatched:
                 unmatched.append(pattern)
+        if len(patterns) == 1 and sorted_already:
+            return out, unmatched  # taken in order from the sorted whole-project walk
         return dict(sorted(out.items())), unmatched
 
     def code_files(self, data: dict[str, ProjectFile]) -> dict[str, ProjectFile]:
