@@ -181,3 +181,23 @@ def test_folder_choice_is_deepest_first() -> None:
     assert choose_folders(paths) == {"d/a", "d"}  # b and c are too small alone; together they make d an entry
     assert choose_folders([f"top{i}" for i in range(2 * N)]) == set()  # the project's top level never is one
     assert choose_folders([f"x/y/z/{i}" for i in range(N - 1)]) == set()
+
+
+def test_many_small_files_hashed_in_worker_processes_match_hashlib(tmp_path: Path) -> None:
+    import hashlib
+
+    from holotype.capture import fingerprints
+    from holotype.capture.walk import ProjectWalker
+
+    count = fingerprints.PROCESS_MIN_FILES + 50
+    fill(tmp_path / "d" / "plate", count)
+    (tmp_path / "d" / "big.bin").write_bytes(os.urandom(fingerprints.SMALL + 1))  # threads take this one
+    files, _ = ProjectWalker(tmp_path).collect(("d",))
+    (tmp_path / "d" / "plate" / "well00017.dat").unlink()  # gone between the walk and the hashing
+    result = fingerprints.fingerprint_files(files)
+    assert set(result.problems) == {"d/plate/well00017.dat"} and result.problems["d/plate/well00017.dat"][0] == \
+        "unreadable"
+    assert len(result.records) == count  # every other small file and the big one
+    for rel in ("d/big.bin", "d/plate/well00000.dat", f"d/plate/well{count - 1:05d}.dat"):
+        # FIPS 180-4 SHA-256 as Python's hashlib computes it
+        assert result.records[rel].sha256 == hashlib.sha256((tmp_path / rel).read_bytes()).hexdigest()
