@@ -78,11 +78,11 @@ def encode_listing(records: dict[str, FileRecord]) -> bytes:
     return b"".join(parts)
 
 
-def folder_record(records: dict[str, FileRecord]) -> tuple[FolderRecord, bytes]:
-    """The lock entry for a folder holding `records`, and its listing object's bytes."""
+def folder_record(folder: str, records: dict[str, FileRecord]) -> tuple[FolderRecord, bytes]:
+    """The lock entry for `folder` holding `records`, and its listing object's bytes."""
     raw = encode_listing(records)
     total = sum(r.size for r in records.values() if r.kind == "file")
-    return FolderRecord(files=len(records), bytes=total, listing=hashlib.sha256(raw).hexdigest()), raw
+    return FolderRecord(folder, len(records), total, hashlib.sha256(raw).hexdigest()), raw
 
 
 def decode_listing(raw: bytes, folder: str, where: str) -> dict[str, FileRecord]:
@@ -115,11 +115,4 @@ def decode_listing(raw: bytes, folder: str, where: str) -> dict[str, FileRecord]
                 raise bad(f"holds an unknown entry kind for '{rel[:200]}'")
     except (ValueError, UnicodeDecodeError):
         raise bad("holds a malformed entry") from None
-    return out
-
-
-def with_folders(data: dict[str, FileRecord], folders: dict[str, FolderRecord]) -> dict[str, str]:
-    """(path, digest) of every data entry, a folder entry standing for its files: what identifies the data."""
-    out = {p: (r.sha256 or f"link:{r.target}") for p, r in data.items()}
-    out.update({f + "/": f"listing:{rec.listing}" for f, rec in folders.items()})
     return out

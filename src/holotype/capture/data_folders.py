@@ -32,13 +32,6 @@ class DataResult(FingerprintResult):
     folder_files: dict[str, dict[str, FileRecord]] = field(default_factory=dict)
     listings: dict[str, bytes] = field(default_factory=dict)
 
-    def all_records(self) -> dict[str, FileRecord]:
-        """Every data file's record (folders whose files were not digested left out)."""
-        out = dict(self.records)
-        for files in self.folder_files.values():
-            out.update(files)
-        return dict(sorted(out.items()))
-
 
 def _stamp(files: list[ProjectFile]) -> str:
     """One digest of the files' paths and identities; "" when one changed too recently to trust its times."""
@@ -104,8 +97,7 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
     remember: list[tuple[str, str]] = []
     for folder in sorted(set(groups) - set(out.folders)):
         records = per_folder.get(folder, {})
-        entry, raw = folder_record(records)
-        entry = FolderRecord(folder, entry.files, entry.bytes, entry.listing)
+        entry, raw = folder_record(folder, records)
         out.folders[folder] = entry
         out.folder_files[folder] = records
         if listings:

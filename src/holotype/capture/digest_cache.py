@@ -11,6 +11,7 @@ import os
 import sqlite3
 import stat
 import time
+from collections.abc import Sequence
 from pathlib import Path
 
 from holotype.errors import HolotypeError
@@ -150,11 +151,15 @@ class DigestCache:
         now_ns = time.time_ns()
         safe = [(*ident, digest) for ident, digest in entries
                 if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]
-        if not safe:
-            return
+        if safe:
+            self._write_many("INSERT OR REPLACE INTO digests VALUES (?, ?, ?, ?, ?, ?)", safe)
+
+    def _write_many(self, sql: str, rows: Sequence[tuple[object, ...]]) -> None:
+        """Many rows in one short transaction (a failed write only loses the speed-up)."""
+        assert self.conn is not None
         try:
             self.conn.execute("BEGIN IMMEDIATE")
-            self.conn.executemany("INSERT OR REPLACE INTO digests VALUES (?, ?, ?, ?, ?, ?)", safe)
+            self.conn.executemany(sql, rows)
             self.conn.execute("COMMIT")
         except sqlite3.DatabaseError:
             try:
@@ -192,16 +197,8 @@ class DigestCache:
         if self.conn is None or not items:
             return
         now = time.time()
-        try:
-            self.conn.execute("BEGIN IMMEDIATE")
-            self.conn.executemany("INSERT OR REPLACE INTO facts (key, doc, stored) VALUES (?, ?, ?)",
-                                  [(k, d, now) for k, d in items])
-            self.conn.execute("COMMIT")
-        except sqlite3.DatabaseError:
-            try:
-                self.conn.execute("ROLLBACK")
-            except sqlite3.DatabaseError:
-                pass
+        self._write_many("INSERT OR REPLACE INTO facts (key, doc, stored) VALUES (?, ?, ?)",
+                         [(k, d, now) for k, d in items])
 
     def remember(self, key: str, doc: str) -> None:
         if self.conn is None:

@@ -16,7 +16,7 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
-from holotype.compare.digests import compare_file_sets
+from holotype.compare.digests import as_entries, compare_file_sets
 from holotype.records import AnalysisRecord, Environment, FileRecord, FolderRecord, LockContents, NumericStack
 
 
@@ -35,11 +35,8 @@ class Now:
 def _as_files(files: dict[str, FileRecord], folders: dict[str, FolderRecord],
               inputs: set[str]) -> dict[str, FileRecord]:
     """An analysis' inputs (all data when it declares none), a folder entry standing as one file `folder/`."""
-    out = {p: r for p, r in files.items() if not inputs or p in inputs}
-    for folder, rec in folders.items():
-        if not inputs or any(i.startswith(folder + "/") for i in inputs):
-            out[folder + "/"] = FileRecord(folder + "/", "file", rec.bytes, rec.listing)
-    return out
+    return {p: r for p, r in as_entries(files, folders).items()
+            if not inputs or p in inputs or (p.endswith("/") and any(i.startswith(p) for i in inputs))}
 
 
 def used_distributions(analysis: AnalysisRecord, lock: LockContents) -> tuple[list[str], list[str]]:
