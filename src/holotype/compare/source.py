@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import hashlib
 import io
+import os
 from dataclasses import dataclass
 from pathlib import Path
 from typing import BinaryIO
@@ -55,6 +56,12 @@ class Source:
             return self.data[:n]
         with self.open() as fh:
             return fh.read(n)
+
+    def size(self) -> int:
+        if self.data is not None:
+            return len(self.data)
+        with self.open() as fh:
+            return os.fstat(fh.fileno()).st_size
 
     def sha256(self) -> str:
         if self.data is not None:

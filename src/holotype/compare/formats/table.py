@@ -91,12 +91,13 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
     a_iter = _chunks(actual, a_delim, a_quote)
     with ThreadPoolExecutor(max_workers=2, thread_name_prefix="holotype-csv") as pool:
         first = True
+        fe, fa = pool.submit(next, e_iter, None), pool.submit(next, a_iter, None)
         while True:
-            fe = pool.submit(next, e_iter, None)
-            fa = pool.submit(next, a_iter, None)
             e_chunk, a_chunk = fe.result(), fa.result()
             if e_chunk is None and a_chunk is None:
                 break
+            # the next chunks are parsed while these are judged (two chunks per file in memory at most)
+            fe, fa = pool.submit(next, e_iter, None), pool.submit(next, a_iter, None)
             if first:
                 head: Any = e_chunk if e_chunk is not None else a_chunk
                 other: Any = a_chunk if a_chunk is not None else e_chunk
