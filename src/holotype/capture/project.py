@@ -59,8 +59,9 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
         folders = {o.rsplit("/", 1)[0] + "/" for o in outputs if "/" in o}
         code = {rel: f for rel, f in walker.code_files(data).items()
                 if not any(rel.startswith(folder) for folder in folders)}
-    data = {rel: f for rel, f in data.items() if rel not in outputs}
-    code = {rel: f for rel, f in code.items() if rel not in outputs}
+    if outputs:  # the walker already leaves them out; a plain pattern naming one does not
+        data = {rel: f for rel, f in data.items() if rel not in outputs}
+        code = {rel: f for rel, f in code.items() if rel not in outputs}
     return data, code, unmatched
 
 

@@ -160,17 +160,17 @@ class ProjectWalker:
                 if not name.isascii():
                     _utf8_name(rel)
                 try:
-                    if entry.is_symlink():
+                    if entry.is_file(follow_symlinks=False):  # the common case first
+                        st = entry.stat(follow_symlinks=False)
+                        out[rel] = ProjectFile(rel, full, False, st.st_size,
+                                               (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+                    elif entry.is_symlink():
                         self._check_link(full, rel)
                         out[rel] = ProjectFile(rel, full, True, 0)
                     elif entry.is_dir(follow_symlinks=False):
                         if name in SKIP_FOLDERS or os.path.exists(full + "/pyvenv.cfg"):
                             continue
                         stack.append((full, rel + "/"))
-                    elif entry.is_file(follow_symlinks=False):
-                        st = entry.stat(follow_symlinks=False)
-                        out[rel] = ProjectFile(rel, full, False, st.st_size,
-                                               (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
                 except OSError:
                     out[rel] = ProjectFile(rel, full, False, 0)
 
@@ -193,8 +193,8 @@ class ProjectWalker:
         if self._everything is None:
             found: dict[str, ProjectFile] = {}
             self._walk_folder(str(self.root), found)
-            self._everything = dict(sorted(found.items()))
-            self._keys = list(self._everything)
+            self._keys = sorted(found)
+            self._everything = {k: found[k] for k in self._keys}
         return self._everything
 
     def _from_everything(self, rel: str) -> dict[str, ProjectFile] | None:
