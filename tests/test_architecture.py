@@ -26,7 +26,7 @@ LAYERS = {
     "holotype.standards": 30,
     "holotype.appendix": 25, "holotype.manifests": 25,
     "holotype.records": 20, "holotype.findings": 20, "holotype.tolerance": 20, "holotype.clock": 20,
-    "holotype.atomic": 20, "holotype.safe_files": 25,
+    "holotype.atomic": 20, "holotype.safe_files": 25, "holotype.search": 0,
     "holotype.errors": 10,
     "holotype.schema": 0, "holotype.phrasing": 0, "holotype.redaction": 0, "holotype.threads": 0, "holotype.seeds": 0, "holotype.__version__": 0,
 }

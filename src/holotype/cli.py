@@ -399,6 +399,23 @@ def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> J
     return diff_files(base / a, base / b, session.project)
 
 
+@findings_command("pinpoint")
+@click.option("--max-runs", type=click.IntRange(1, 10_000), default=32, show_default=True,
+              help="At most this many candidate runs; what was proven by then is reported.")
+@click.option("--keep", is_flag=True, help="Keep the candidate environments' folders for inspection.")
+@click.option("--find-links", multiple=True, help="Passed to the installer (repeatable).")
+@click.option("--index-url", default=None, help="Passed to the installer.")
+@click.option("--no-index", is_flag=True, help="Passed to the installer.")
+def pinpoint(session: Session, max_runs: int, keep: bool, find_links: tuple[str, ...], index_url: str | None,
+             no_index: bool) -> Judgement:
+    """After a failed replay, find which recorded difference moves which output."""
+    from holotype.commands.pinpoint import pinpoint_project
+    from holotype.standards.installer import InstallerOptions
+
+    return pinpoint_project(session.project, max_runs=max_runs, keep=keep,
+                            installer=InstallerOptions(list(find_links), index_url, no_index), say=session.say)
+
+
 @findings_command("recreate")
 @click.argument("folder", type=PATH)
 @click.option("--python", default=None, help="Interpreter to build it with (default: one of the locked version).")
@@ -410,7 +427,8 @@ def diff(session: Session, a: Path | None, b: Path | None, rev: str | None) -> J
 def recreate(session: Session, folder: Path, python: str | None, find_links: tuple[str, ...],
              index_url: str | None, no_index: bool, use_folder: tuple[str, ...]) -> Judgement:
     """Build a fresh virtual environment in FOLDER that matches the lock, then check it."""
-    from holotype.commands.recreate import InstallerOptions, recreate_environment
+    from holotype.commands.recreate import recreate_environment
+    from holotype.standards.installer import InstallerOptions
 
     folders: dict[str, str] = {}
     for item in use_folder:

@@ -7,7 +7,6 @@ import os
 import shutil
 import subprocess
 import sys
-from dataclasses import dataclass, field
 from pathlib import Path
 
 from holotype.atomic import write_atomic
@@ -16,26 +15,10 @@ from holotype.errors import HolotypeError, InstallError
 from holotype.findings import Finding, Judgement
 from holotype.lockfile import LOCK_NAME, read_lock
 from holotype.records import LockContents, PackageRecord
+from holotype.standards.installer import Installer, InstallerOptions
 from holotype.standards.requirements import local_folder, local_url, requirement_line
 from holotype.standards.wheel_cache import is_recorded_wheel, wheel_cache
 from holotype.verify import verify_project
-
-
-@dataclass
-class InstallerOptions:
-    find_links: list[str] = field(default_factory=list)
-    index_url: str | None = None
-    no_index: bool = False
-
-    def args(self) -> list[str]:
-        out: list[str] = []
-        for link in self.find_links:
-            out += ["--find-links", link]
-        if self.index_url:
-            out += ["--index-url", self.index_url]
-        if self.no_index:
-            out.append("--no-index")
-        return out
 
 
 def _version_of(exe: str) -> str | None:
@@ -73,29 +56,6 @@ def find_interpreter(lock: LockContents) -> str:
             return exe
     raise HolotypeError(f"no Python {wanted} found on PATH or in the usual install folders; install it, "
                         "or pass --python PATH to use another interpreter")
-
-
-class _Installer:
-    """Runs the new environment's installer, keeping all of its output in one log named in any failure."""
-
-    def __init__(self, python: str, log: Path, options: InstallerOptions) -> None:
-        self.python, self.log, self.options = python, log, options
-        self.text: list[str] = []
-
-    def run(self, what: str, *args: str, fatal: bool = True) -> str | None:
-        """Run `pip ARGS`; on failure raise (or return) one line with the installer's first error line."""
-        argv = [self.python, "-m", "pip", "--disable-pip-version-check", *args]
-        proc = subprocess.run(argv, capture_output=True, text=True, stdin=subprocess.DEVNULL)
-        self.text += [f"$ {' '.join(argv)}", proc.stdout, proc.stderr]
-        write_atomic(self.log, "\n".join(self.text))
-        if proc.returncode == 0:
-            return None
-        lines = [ln.strip() for ln in (proc.stderr + "\n" + proc.stdout).splitlines() if ln.strip()]
-        first = next((ln for ln in lines if ln.startswith("ERROR:")), None) or (lines[-1] if lines else "no output")
-        message = f"{what} failed: {first[:400]} (the installer's full output: {self.log})"
-        if fatal:
-            raise InstallError(message)
-        return message
 
 
 def _bundled_wheels(python: str) -> Path:
@@ -159,7 +119,7 @@ def recreate_environment(root: Path, target: Path, *, python: str | None = None,
         raise HolotypeError(f"cannot create a virtual environment with {base}: "
                             f"{(created.stderr.strip().splitlines() or ['unknown error'])[-1]}")
     venv_python = str(venv_interpreter(target))
-    pip = _Installer(venv_python, target / "holotype-install.log", installer)
+    pip = Installer(venv_python, target / "holotype-install.log", installer)
     findings: list[Finding] = []
     upgraded = pip.run("bringing the new environment's installer up to date", "install", "--upgrade", "pip",
                        *installer.args(), fatal=False)

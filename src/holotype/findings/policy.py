@@ -38,6 +38,12 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "data.unreadable": "fail",
     "data.unstable": "fail",
     "data.listing": "fail",
+    # pinpoint: the cause found for outputs that still do not reproduce, and what the search could not vary
+    "pinpoint.cause": "fail",
+    "pinpoint.nondeterministic": "fail",
+    "pinpoint.unexplained": "fail",
+    "pinpoint.unfinished": "fail",
+    "pinpoint.not_varied": "info",
     "code.changed": "warn",
     "code.missing": "warn",
     "code.added": "warn",

@@ -1,0 +1,142 @@
+"""`holotype pinpoint`: the search, and the whole command on invented packages built inside the test."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from holotype.search import smallest_cause
+
+
+@pytest.mark.parametrize("n", [1, 2, 5, 6, 16])
+def test_one_culprit_is_found_within_log2_n_plus_2_runs(n: int) -> None:
+    for culprit in range(n):
+        result = smallest_cause(list(range(n)), lambda s, c=culprit: c in s, budget=100)
+        assert result.culprits == [culprit] and result.proven
+        assert result.runs <= math.ceil(math.log2(n)) + 2 if n > 1 else result.runs <= 2
+
+
+def test_two_changes_that_move_only_together_are_named_as_a_pair() -> None:
+    for pair in [(0, 5), (1, 2), (3, 4), (0, 1)]:
+        result = smallest_cause(list(range(6)), lambda s, p=pair: set(p) <= set(s), budget=100)
+        assert sorted(result.culprits) == list(pair) and result.proven
+
+
+def test_a_move_no_change_explains_is_not_blamed_on_one() -> None:
+    result = smallest_cause(list(range(4)), lambda s: True, budget=100)  # moves whatever is applied
+    assert result.complement_moves and not result.proven
+
+
+def test_the_budget_bounds_the_runs_and_says_so() -> None:
+    result = smallest_cause(list(range(16)), lambda s: {3, 11} <= set(s), budget=4)
+    assert result.exhausted and result.runs == 4 and not result.proven
+
+
+# ----------------------------------------------------------------------------- the whole command, offline
+
+import json  # noqa: E402
+import os  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+from conftest import build_wheel, make_venv, run_cli, write  # noqa: E402
+from holotype.run.overlays import overlay_root  # noqa: E402
+
+SIX = [f"lake-tool-{i}" for i in range(1, 7)]
+CULPRIT = "lake-tool-4"
+VALUE = ("import json, os\n" + "".join(f"import lake_tool_{i}\n" for i in range(1, 7)) +
+         "value = 0.25\n" + "".join(f"value *= lake_tool_{i}.FACTOR\n" for i in range(1, 7)) +
+         "value *= 2.0 if lake_tool_pair_a.NEW and lake_tool_pair_b.NEW else 1.0\n"
+         "os.makedirs('results', exist_ok=True)\n"
+         "json.dump({'turbidity': value}, open('results/turbidity.json', 'w'))\n")
+
+
+@pytest.fixture(scope="module")
+def lakes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
+    """A venv of invented packages at 1.0, three recorded projects, then every package upgraded to 2.0:
+    only lake-tool-4 2.0 changes the number alone; the pair changes it only together."""
+    base = tmp_path_factory.mktemp("pinpoint")
+    wheels = base / "wheels"
+    for name in SIX:
+        build_wheel(wheels, name, "1.0", module_text="FACTOR = 1.0\n")
+        build_wheel(wheels, name, "2.0", module_text="FACTOR = 1.5\n" if name == CULPRIT else "FACTOR = 1.0\n")
+    for name in ("lake-tool-pair-a", "lake-tool-pair-b"):
+        build_wheel(wheels, name, "1.0", module_text="NEW = False\n")
+        build_wheel(wheels, name, "2.0", module_text="NEW = True\n")
+    venv = make_venv(base / "venv", wheels)
+    every = [*SIX, "lake-tool-pair-a", "lake-tool-pair-b"]
+    venv.install(*(f"{n}==1.0" for n in every))
+    projects = {}
+    scripts = {"single": VALUE.replace("lake_tool_pair_a.NEW and ", "False and "),
+               "pair": VALUE.replace("value *= lake_tool_4.FACTOR\n", ""),
+               "noisy": VALUE + "json.dump({'turbidity': os.urandom(4).hex()}, open('results/turbidity.json', 'w'))\n"}
+    for name, script in scripts.items():
+        root = base / name
+        write(root / "data" / "secchi.csv", "site,depth\nnorth,2.5\n")
+        (root / "run.py").write_text("import lake_tool_pair_a, lake_tool_pair_b\n" + script)
+        write(root / "holotype.toml", f'python = "{venv.python}"\ndata = ["data"]\nseed = 7\n\n'
+              '[analyses.turbidity]\ncommand = "python run.py"\noutputs = ["results/turbidity.json"]\n')
+        assert run_cli("record", "-C", root).code == 0
+        projects[name] = root
+    if True:  # after the record: everything upgraded
+        venv.install("--upgrade", *(f"{n}==2.0" for n in every))
+    return {"wheels": wheels, **projects}
+
+
+def pinpoint(root: Path, wheels: object, *extra: str) -> tuple[int, dict, str]:
+    assert run_cli("replay", "-C", root).code == 1
+    result = run_cli("pinpoint", "-C", root, "--no-index", "--find-links", str(wheels), "--format", "json", *extra)
+    assert result.code in (0, 1), result.err
+    return result.code, json.loads(result.out), result.err
+
+
+@pytest.mark.slow
+def test_pinpoint_names_the_one_package_that_moves_the_number(lakes: dict[str, object]) -> None:
+    root = lakes["single"]
+    assert isinstance(root, Path)
+    stale = overlay_root() / "999999999-1"  # left by an interrupted session (no such process)
+    stale.mkdir(parents=True, exist_ok=True)
+    lock_before = (root / "holotype.lock").read_bytes()
+    code, doc, err = pinpoint(root, lakes["wheels"])
+    output_after_replay = (root / "results" / "turbidity.json").read_bytes()
+    causes = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    assert code == 1 and len(causes) == 1, doc
+    assert causes[0]["subject"] == CULPRIT and "lake-tool-4 1.0 → 2.0" in causes[0]["message"]
+    assert "all outputs reproduce" in causes[0]["message"]
+    runs = [line for line in err.splitlines() if line.startswith("candidate run")]
+    assert 1 <= len(runs) <= math.ceil(math.log2(8)) + 2, err  # eight packages differ (six and the pair)
+    # nothing in the project changed; no candidate folder is left, the stale one included
+    assert (root / "holotype.lock").read_bytes() == lock_before
+    assert (root / "results" / "turbidity.json").read_bytes() == output_after_replay
+    assert not stale.exists() and not any(overlay_root().iterdir())
+
+
+@pytest.mark.slow
+def test_two_packages_that_move_a_number_only_together_are_named_as_a_pair(lakes: dict[str, object]) -> None:
+    root = lakes["pair"]
+    assert isinstance(root, Path)
+    code, doc, _ = pinpoint(root, lakes["wheels"])
+    [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    assert code == 1 and cause["subject"] == "lake-tool-pair-a + lake-tool-pair-b"
+    assert "only together" in cause["message"]
+
+
+@pytest.mark.slow
+def test_a_nondeterministic_analysis_is_reported_as_such_with_no_culprit(lakes: dict[str, object]) -> None:
+    root = lakes["noisy"]
+    assert isinstance(root, Path)
+    code, doc, _ = pinpoint(root, lakes["wheels"])
+    kinds = {f["kind"] for f in doc["findings"]}
+    assert code == 1 and "pinpoint.nondeterministic" in kinds and "pinpoint.cause" not in kinds
+    assert "replay --twice" in json.dumps(doc)
+
+
+def test_pinpoint_without_a_replay_is_one_line_and_exit_2(tmp_path: Path) -> None:
+    write(tmp_path / "holotype.toml", 'data = []\nseed = 1\n')
+    (tmp_path / "data").mkdir()
+    write(tmp_path / "holotype.toml", 'data = ["data"]\nseed = 1\n')
+    (tmp_path / "data" / "x.csv").write_text("x\n1\n")
+    assert run_cli("record", "--no-run", "-C", tmp_path).code == 0
+    result = run_cli("pinpoint", "-C", tmp_path)
+    assert result.code == 2 and "run 'holotype replay' first" in result.err and "Traceback" not in result.err
+    assert os.path.exists(tmp_path / "holotype.lock")
