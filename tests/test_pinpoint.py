@@ -78,8 +78,7 @@ def lakes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
               '[analyses.turbidity]\ncommand = "python run.py"\noutputs = ["results/turbidity.json"]\n')
         assert run_cli("record", "-C", root).code == 0
         projects[name] = root
-    if True:  # after the record: everything upgraded
-        venv.install("--upgrade", *(f"{n}==2.0" for n in every))
+    venv.install("--upgrade", *(f"{n}==2.0" for n in every))  # after the record: everything upgraded
     return {"wheels": wheels, **projects}
 
 
@@ -132,10 +131,8 @@ def test_a_nondeterministic_analysis_is_reported_as_such_with_no_culprit(lakes: 
 
 
 def test_pinpoint_without_a_replay_is_one_line_and_exit_2(tmp_path: Path) -> None:
-    write(tmp_path / "holotype.toml", 'data = []\nseed = 1\n')
-    (tmp_path / "data").mkdir()
     write(tmp_path / "holotype.toml", 'data = ["data"]\nseed = 1\n')
-    (tmp_path / "data" / "x.csv").write_text("x\n1\n")
+    write(tmp_path / "data" / "x.csv", "x\n1\n")
     assert run_cli("record", "--no-run", "-C", tmp_path).code == 0
     result = run_cli("pinpoint", "-C", tmp_path)
     assert result.code == 2 and "run 'holotype replay' first" in result.err and "Traceback" not in result.err

@@ -90,9 +90,10 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
     config = load_config(root)
     lock = read_lock(root / LOCK_NAME)
     store = ProjectStore(root)
-    failing = _failing_outputs(store.last_replay())
-    if not store.last_replay():
+    last = store.last_replay()
+    if not last:
         raise HolotypeError("no replay to explain yet: run 'holotype replay' first", root)
+    failing = _failing_outputs(last)
     if not failing:
         return Judgement("pinpoint", (), notes=("the last replay reproduced every output: nothing to pinpoint",),
                          warnings=config.warnings)
@@ -139,7 +140,6 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
     overlays = Overlays(capture.python, installer or InstallerOptions())
     runner = make_runner(store, jobs=1, threads=config.threads, cluster=None, digest_file=LOCK_NAME)
     evidence: dict[frozenset[PackageChange], str] = {}
-    last_results: dict[frozenset[PackageChange], list[RunResult]] = {}
     runs = [0]
 
     def run_candidate(applied: list[PackageChange]) -> list[RunResult]:
@@ -158,7 +158,6 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
 
     def moves(applied: list[PackageChange]) -> bool:
         results = run_candidate(applied)
-        last_results[frozenset(applied)] = results
         judged: list[Finding] = []
         for result in results:
             if not result.ok:

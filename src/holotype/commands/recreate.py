@@ -187,5 +187,5 @@ def recreate_environment(root: Path, target: Path, *, python: str | None = None,
                             f"built with {base}; installed {len(files)} wheel(s) from holotype's wheel cache and "
                             f"{len(others) - others.count('-e')} other package(s) without dependency resolution; "
                             f"the installer's output is in {pip.log}"))
-    checked = verify_project(root, command="recreate", python=venv_python)
+    checked = verify_project(root, command="recreate", python=venv_python, lock=lock)
     return Judgement("recreate", tuple(findings) + checked.findings, notes=checked.notes, warnings=checked.warnings)
