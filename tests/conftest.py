@@ -69,16 +69,19 @@ def _record_line(name: str, data: bytes) -> str:
 
 
 def build_wheel(folder: Path, name: str, version: str, requires: tuple[str, ...] = (),
-                module_text: str | None = None) -> Path:
-    """A minimal pure-Python wheel (PEP 427) providing module `name`."""
+                module_text: str | None = None, modules: dict[str, str] | None = None,
+                top_level: str | None = None) -> Path:
+    """A minimal pure-Python wheel (PEP 427) providing module `name` (or the files `modules` names, under
+    top-level `top_level`: a namespace package's part, say)."""
     dist = name.replace("-", "_")
     info = f"{dist}-{version}.dist-info"
+    sources = modules or {f"{dist}/__init__.py": module_text or f"VERSION = {version!r}\n"}
     files: dict[str, bytes] = {
-        f"{dist}/__init__.py": (module_text or f"VERSION = {version!r}\n").encode(),
+        **{rel: text.encode() for rel, text in sources.items()},
         f"{info}/METADATA": (f"Metadata-Version: 2.1\nName: {name}\nVersion: {version}\n"
                              + "".join(f"Requires-Dist: {r}\n" for r in requires)).encode(),
         f"{info}/WHEEL": b"Wheel-Version: 1.0\nGenerator: holotype-tests\nRoot-Is-Purelib: true\nTag: py3-none-any\n",
-        f"{info}/top_level.txt": f"{dist}\n".encode(),
+        f"{info}/top_level.txt": f"{top_level or dist}\n".encode(),
     }
     record = "\n".join(_record_line(n, d) for n, d in files.items()) + f"\n{info}/RECORD,,\n"
     files[f"{info}/RECORD"] = record.encode()

@@ -20,7 +20,7 @@ LAYERS = {
     "holotype": 90,  # the Python API (its imports are inside functions)
     "holotype.__main__": 85, "holotype.entry": 80, "holotype.cli": 70, "holotype.demo": 65,
     "holotype.commands": 60,
-    "holotype.verify": 50,
+    "holotype.verify": 50, "holotype.environments": 50,
     "holotype.capture": 40, "holotype.compare": 40, "holotype.run": 40,
     "holotype.config": 30, "holotype.config_edit": 30, "holotype.lockfile": 30, "holotype.store": 30,
     "holotype.standards": 30,

@@ -3,6 +3,8 @@
 from __future__ import annotations
 
 import math
+import subprocess
+import time
 
 import pytest
 
@@ -137,3 +139,128 @@ def test_pinpoint_without_a_replay_is_one_line_and_exit_2(tmp_path: Path) -> Non
     result = run_cli("pinpoint", "-C", tmp_path)
     assert result.code == 2 and "run 'holotype replay' first" in result.err and "Traceback" not in result.err
     assert os.path.exists(tmp_path / "holotype.lock")
+
+
+# ----------------------------------------------------------------------------- added, removed, variables
+
+ADDED = ("import json, os\nvalue = 0.25\n"
+         "try:\n    import lake_tool_new\n    value *= lake_tool_new.FACTOR\nexcept ImportError:\n    pass\n"
+         "try:\n    import lake_tool_gone\n    value *= lake_tool_gone.FACTOR\nexcept ImportError:\n    pass\n"
+         "os.makedirs('results', exist_ok=True)\njson.dump({'turbidity': value}, open('results/turbidity.json', 'w'))\n")
+NAMESPACE = ("import json, os\nfrom lakens import core\nvalue = 0.25 * core.FACTOR\n"
+             "try:\n    from lakens import extra\n    value *= extra.FACTOR\nexcept ImportError:\n    pass\n"
+             "os.makedirs('results', exist_ok=True)\njson.dump({'turbidity': value}, open('results/turbidity.json', 'w'))\n")
+
+
+def _project(root: Path, python: Path, script: str) -> Path:
+    write(root / "data" / "secchi.csv", "site,depth\nnorth,2.5\n")
+    (root / "run.py").write_text(script)
+    write(root / "holotype.toml", f'python = "{python}"\ndata = ["data"]\nseed = 7\n\n'
+          '[analyses.turbidity]\ncommand = "python run.py"\noutputs = ["results/turbidity.json"]\n')
+    assert run_cli("record", "-C", root).code == 0
+    return root
+
+
+@pytest.fixture(scope="module")
+def since(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
+    """Packages removed and added after the record (no upgrades): lake-tool-gone removed and lake-tool-new
+    added in one environment; in another, lakens-extra added beside lakens-core, parts of one namespace."""
+    base = tmp_path_factory.mktemp("since")
+    wheels = base / "wheels"
+    build_wheel(wheels, "lake-tool-gone", "1.0", module_text="FACTOR = 1.0\n")
+    build_wheel(wheels, "lake-tool-new", "1.0", module_text="FACTOR = 3.0\n")
+    build_wheel(wheels, "lakens-core", "1.0", modules={"lakens/core.py": "FACTOR = 1.0\n"}, top_level="lakens")
+    build_wheel(wheels, "lakens-extra", "1.0", modules={"lakens/extra.py": "FACTOR = 5.0\n"}, top_level="lakens")
+    plain, spaced = make_venv(base / "plain", wheels), make_venv(base / "spaced", wheels)
+    plain.install("lake-tool-gone==1.0")
+    spaced.install("lakens-core==1.0")
+    slow = ADDED + ("import sys, time\nif os.environ.get('LAKE_SLOW'):\n"
+                    "    open(os.environ['LAKE_SLOW'], 'w').write(str(os.getpid()))\n    time.sleep(120)\n")
+    projects = {"added": _project(base / "added", plain.python, ADDED),
+                "slow": _project(base / "slow", plain.python, slow),
+                "namespace": _project(base / "namespace", spaced.python, NAMESPACE)}
+    plain.pip("uninstall", "-y", "lake-tool-gone")
+    plain.install("lake-tool-new==1.0")
+    spaced.install("lakens-extra==1.0")
+    return {"wheels": wheels, **projects}
+
+
+@pytest.mark.slow
+def test_a_package_added_and_one_removed_since_the_record_are_both_varied(since: dict[str, Path]) -> None:
+    code, doc, err = pinpoint(since["added"], since["wheels"])
+    [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    # the added package is taken away by composition (the removed one is put back the same way): said so
+    assert code == 1 and cause["subject"] == "lake-tool-new", doc
+    assert "lake-tool-new 1.0 added" in cause["message"] and "lake-tool-new absent" in cause["message"]
+    assert "exactly as in the failing replay" in cause["message"] and "[candidates: composed]" in cause["message"]
+    assert not [f for f in doc["findings"] if f["kind"] == "pinpoint.not_varied"]
+    [searched] = [f for f in doc["findings"] if f["kind"] == "pinpoint.searched"]
+    assert "0 built as full environments" in searched["message"] and "lake-tool-gone" not in cause["subject"]
+    assert "composed" in err and not any(overlay_root().iterdir())
+
+
+@pytest.mark.slow
+def test_an_added_namespace_part_falls_back_to_a_full_environment_and_says_so(since: dict[str, Path]) -> None:
+    code, doc, err = pinpoint(since["namespace"], since["wheels"])
+    [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    # taking lakens-extra away at import would take lakens-core's `lakens` too: composition cannot express it
+    assert code == 1 and cause["subject"] == "lakens-extra", doc
+    [searched] = [f for f in doc["findings"] if f["kind"] == "pinpoint.searched"]
+    assert "full environment" in cause["message"] and "1 built as full environments" in searched["message"]
+    assert "building a full candidate environment" in err and not any(overlay_root().iterdir())
+
+
+def test_a_numerics_variable_set_since_the_record_is_named(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import sys
+
+    root = _project(tmp_path / "cbwr", Path(sys.executable),
+                    "import json, os\nos.makedirs('results', exist_ok=True)\n"  # a stand-in for a library honouring it
+                    "value = 0.1 + (1e-3 if os.environ.get('MKL_CBWR') else 0.0)\n"
+                    "json.dump({'turbidity': value}, open('results/turbidity.json', 'w'))\n")
+    monkeypatch.setenv("MKL_CBWR", "AVX2")
+    code, doc, _ = pinpoint(root, tmp_path / "no-wheels")
+    [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    assert code == 1 and cause["subject"] == "MKL_CBWR" and cause["area"] == "environment", doc
+    assert "MKL_CBWR unset → 'AVX2'" in cause["message"] and "all outputs reproduce" in cause["message"]
+
+
+def _wait_for(path: Path, words: str, proc: subprocess.Popen[bytes]) -> None:
+    deadline = time.monotonic() + 120
+    while time.monotonic() < deadline and proc.poll() is None:
+        if path.is_file() and words in path.read_text():
+            return
+        time.sleep(0.05)
+    raise AssertionError(f"{words!r} never appeared: {path.read_text() if path.is_file() else ''}")
+
+
+@pytest.mark.slow
+def test_an_interrupted_search_leaves_the_project_as_it_was_and_no_candidate_behind(
+        since: dict[str, Path], tmp_path: Path) -> None:
+    import signal
+    import sys
+
+    from holotype.run.overlays import remove_stale_sessions
+
+    root = since["slow"]
+    assert run_cli("replay", "-C", root).code == 1
+    kept = {p: p.read_bytes() for p in root.rglob("*") if p.is_file() and ".holotype" not in p.parts}
+    for sig in (signal.SIGINT, signal.SIGKILL):
+        pid_file, err = tmp_path / f"analysis-{sig}.pid", tmp_path / f"err-{sig}.txt"
+        with err.open("wb") as sink:
+            proc = subprocess.Popen([sys.executable, "-m", "holotype", "pinpoint", "-C", str(root), "--no-index",
+                                     "--find-links", str(since["wheels"])], stdout=subprocess.DEVNULL, stderr=sink,
+                                    env={**os.environ, "LAKE_SLOW": str(pid_file)})
+            _wait_for(err, "candidate run 1", proc)
+            while not pid_file.is_file() or not pid_file.read_text():
+                time.sleep(0.05)  # the candidate has written its output and now sleeps
+            proc.send_signal(sig)
+            proc.wait(timeout=60)
+        if sig == signal.SIGINT:  # Ctrl-C: holotype stops the analysis, puts the outputs back, cleans up
+            assert proc.returncode == 2 and "interrupted" in err.read_text()
+            assert not any(overlay_root().iterdir())
+        else:  # killed outright: the next run finds the session, puts the outputs back, removes it
+            os.kill(int(pid_file.read_text()), signal.SIGKILL)
+            assert any(overlay_root().iterdir())
+            assert remove_stale_sessions(root) == 1 and not any(overlay_root().iterdir())
+        now = {p: p.read_bytes() for p in root.rglob("*") if p.is_file() and ".holotype" not in p.parts}
+        assert now == kept, sig

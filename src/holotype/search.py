@@ -24,7 +24,8 @@ T = TypeVar("T")
 
 
 class OutOfRuns(Exception):
-    """The run budget is spent."""
+    """The run budget is spent (raised by the search itself, or by `moves` when a budget shared by several
+    searches is)."""
 
 
 @dataclass

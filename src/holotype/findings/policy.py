@@ -44,6 +44,7 @@ DEFAULT_SEVERITY: dict[str, str] = {
     "pinpoint.unexplained": "fail",
     "pinpoint.unfinished": "fail",
     "pinpoint.not_varied": "info",
+    "pinpoint.searched": "info",
     "code.changed": "warn",
     "code.missing": "warn",
     "code.added": "warn",

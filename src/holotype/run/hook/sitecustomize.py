@@ -9,6 +9,9 @@
    loaded numeric libraries, which BLAS/LAPACK/OpenMP libraries (threadpoolctl; holotype's own copy is
    appended to sys.path from HOLOTYPE_THREADPOOLCTL, so an installed one wins). That is how holotype
    knows what each analysis used at run time, lazily imported dependencies included.
+4. In a `pinpoint` candidate, HOLOTYPE_HIDE_MODULES and HOLOTYPE_HIDE_DISTS (comma-separated) take
+   packages away that were added since the record: their top-level modules cannot be imported, and
+   importlib.metadata does not list their distributions (the environment as it was recorded).
 
 Any sitecustomize the environment already had is imported afterwards.
 """
@@ -102,6 +105,49 @@ class _EmptyPackage:
         module.__doc__ = "holotype's seeds only (holotype itself is installed in another environment)"
 
 
+class _Hidden:
+    """First on sys.meta_path: the top-level modules of packages a candidate environment takes away."""
+
+    def __init__(self, modules):
+        self.modules = modules
+
+    def find_spec(self, name, path=None, target=None):
+        if name.partition(".")[0] in self.modules:
+            raise ModuleNotFoundError(f"No module named {name!r} (taken away by holotype pinpoint)", name=name)
+        return None
+
+
+def _normalise(name):
+    import re
+
+    return re.sub(r"[-_.]+", "-", name or "").lower()
+
+
+def _hide_distributions(metadata, hidden):
+    """importlib.metadata finds distributions through resolvers, one per meta-path finder (Python 3.8 to
+    3.13): wrap each so that the hidden ones are never offered."""
+    found = metadata.Distribution._discover_resolvers
+
+    def keep(resolver):
+        def resolve(*args, **kwargs):
+            return (d for d in resolver(*args, **kwargs) if _normalise(d.metadata["Name"]) not in hidden)
+        return resolve
+
+    metadata.Distribution._discover_resolvers = staticmethod(lambda: [keep(r) for r in found()])
+
+
+def _hide():
+    modules = {m for m in os.environ.get("HOLOTYPE_HIDE_MODULES", "").split(",") if m}
+    dists = {_normalise(d) for d in os.environ.get("HOLOTYPE_HIDE_DISTS", "").split(",") if d}
+    if modules:
+        sys.meta_path.insert(0, _Hidden(modules))
+    if dists:
+        if "importlib.metadata" in sys.modules:
+            _hide_distributions(sys.modules["importlib.metadata"], dists)
+        else:
+            sys.meta_path.insert(0, _AfterImport("importlib.metadata", lambda m: _hide_distributions(m, dists)))
+
+
 def _report():
     path = os.environ.get("HOLOTYPE_RUN_REPORT")
     if not path:
@@ -135,6 +181,7 @@ def _install():
 
     atexit.register(_report)
     sys.meta_path.append(_SeedsFallback())
+    _hide()
     if "matplotlib" in sys.modules:
         _fix_svg_salt(sys.modules["matplotlib"])
     else:
