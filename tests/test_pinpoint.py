@@ -72,12 +72,16 @@ def lakes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
     scripts = {"single": VALUE.replace("lake_tool_pair_a.NEW and ", "False and "),
                "pair": VALUE.replace("value *= lake_tool_4.FACTOR\n", ""),
                "noisy": VALUE + "json.dump({'turbidity': os.urandom(4).hex()}, open('results/turbidity.json', 'w'))\n"}
+    scripts["two"] = (VALUE.replace("lake_tool_pair_a.NEW and ", "False and ") +
+                      "pair = 2.0 if lake_tool_pair_a.NEW and lake_tool_pair_b.NEW else 1.0\n"
+                      "json.dump({'clarity': pair}, open('results/clarity.json', 'w'))\n")
     for name, script in scripts.items():
         root = base / name
         write(root / "data" / "secchi.csv", "site,depth\nnorth,2.5\n")
         (root / "run.py").write_text("import lake_tool_pair_a, lake_tool_pair_b\n" + script)
+        outputs = '"results/turbidity.json", "results/clarity.json"' if name == "two" else '"results/turbidity.json"'
         write(root / "holotype.toml", f'python = "{venv.python}"\ndata = ["data"]\nseed = 7\n\n'
-              '[analyses.turbidity]\ncommand = "python run.py"\noutputs = ["results/turbidity.json"]\n')
+              f'[analyses.turbidity]\ncommand = "python run.py"\noutputs = [{outputs}]\n')
         assert run_cli("record", "-C", root).code == 0
         projects[name] = root
     venv.install("--upgrade", *(f"{n}==2.0" for n in every))  # after the record: everything upgraded
@@ -120,6 +124,18 @@ def test_two_packages_that_move_a_number_only_together_are_named_as_a_pair(lakes
     [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
     assert code == 1 and cause["subject"] == "lake-tool-pair-a + lake-tool-pair-b"
     assert "only together" in cause["message"]
+
+
+@pytest.mark.slow
+def test_each_failing_output_gets_its_own_cause_and_the_runs_are_shared(lakes: dict[str, object]) -> None:
+    root = lakes["two"]
+    assert isinstance(root, Path)
+    code, doc, err = pinpoint(root, lakes["wheels"])
+    causes = {f["message"].split(":")[0]: f["subject"] for f in doc["findings"] if f["kind"] == "pinpoint.cause"}
+    assert code == 1 and causes == {"results/turbidity.json": CULPRIT,
+                                    "results/clarity.json": "lake-tool-pair-a + lake-tool-pair-b"}, doc
+    runs = [line for line in err.splitlines() if line.startswith("candidate run")]
+    assert len(runs) < 2 * 8, err  # far fewer than two separate searches of eight differences would need
 
 
 @pytest.mark.slow
