@@ -280,3 +280,22 @@ def test_an_interrupted_search_leaves_the_project_as_it_was_and_no_candidate_beh
             assert remove_stale_sessions(root) == 1 and not any(overlay_root().iterdir())
         now = {p: p.read_bytes() for p in root.rglob("*") if p.is_file() and ".holotype" not in p.parts}
         assert now == kept, sig
+
+
+def test_the_live_display_shows_runs_done_and_the_most_left() -> None:
+    import io
+
+    from rich.console import Console
+
+    from holotype.render.progress import SearchBar
+
+    sink = io.StringIO()
+    bar = SearchBar(Console(file=sink, force_terminal=True, width=160))
+    bar.run(1, 31, "4 of 8 differences applied (composed)")
+    bar.say("building a full candidate environment in /tmp/x")
+    bar.run(2, 30, "2 of 8 differences applied (composed)")
+    bar.progress.refresh()  # type: ignore[union-attr]
+    bar.close()
+    shown = sink.getvalue()
+    assert "1 done, at most 30 left" in shown and "2 of 8 differences applied" in shown
+    assert "building a full candidate environment" in shown

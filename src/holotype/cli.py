@@ -410,10 +410,17 @@ def pinpoint(session: Session, max_runs: int, keep: bool, find_links: tuple[str,
              no_index: bool) -> Judgement:
     """After a failed replay, find which recorded difference moves which output."""
     from holotype.commands.pinpoint import pinpoint_project
+    from holotype.render.progress import SearchBar
     from holotype.standards.installer import InstallerOptions
 
-    return pinpoint_project(session.project, max_runs=max_runs, keep=keep,
-                            installer=InstallerOptions(list(find_links), index_url, no_index), say=session.say)
+    bar = SearchBar(session.err) if session.interactive else None
+    try:
+        return pinpoint_project(session.project, max_runs=max_runs, keep=keep,
+                                installer=InstallerOptions(list(find_links), index_url, no_index),
+                                say=bar.say if bar else session.say, progress=bar.run if bar else None)
+    finally:
+        if bar is not None:
+            bar.close()
 
 
 @findings_command("recreate")

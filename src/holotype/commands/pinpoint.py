@@ -120,16 +120,16 @@ class Candidates:
 
     def __init__(self, root: Path, config: Config, lock: LockContents, plan: Plan, overlays: Overlays,
                  now_pkgs: dict[str, PackageRecord], varied: list[Difference], failing: list[str],
-                 installer: InstallerOptions, say: Callable[[str], None], max_runs: int) -> None:
+                 installer: InstallerOptions, say: Callable[[str], None], max_runs: int,
+                 progress: Callable[[int, int, str], None] | None = None) -> None:
         self.root, self.config, self.lock, self.plan, self.overlays = root, config, lock, plan, overlays
         self.now_pkgs, self.varied, self.failing, self.installer = now_pkgs, varied, failing, installer
-        self.say, self.max_runs = say, max_runs
+        self.say, self.max_runs, self.progress = say, max_runs, progress
         self.store = ProjectStore(root)
         self.runner = make_runner(self.store, jobs=1, threads=config.threads, cluster=None, digest_file=LOCK_NAME)
         self.known: dict[frozenset[Difference], Outcome] = {}
         self.runs = 0
         self.full = 0  # candidates built as full environments
-        self.worst_left = 0  # set by the caller: the most runs the searches may still need
 
     def outcome(self, applied: list[Difference]) -> Outcome:
         key = frozenset(applied)
@@ -146,8 +146,12 @@ class Candidates:
         variables = {d.name: d.recorded for d in held if d.kind == "variable"}
         plan, how = self._composed(reverted, hidden, variables)
         self.runs += 1
-        self.say(f"candidate run {self.runs} (at most {self.max_runs}, {how}): {len(applied)} of "
-                 f"{len(self.varied)} differences applied")
+        what = f"{len(applied)} of {len(self.varied)} differences applied ({how})"
+        if self.progress is not None:
+            self.progress(self.runs, max(self.max_runs - self.runs, 0), what)
+        else:
+            self.say(f"candidate run {self.runs} (at most {self.max_runs}, {how}): {len(applied)} of "
+                     f"{len(self.varied)} differences applied")
         return self.runner.run(plan, None), how
 
     def _composed(self, reverted: dict[str, str], hidden: dict[str, tuple[str, ...]],
@@ -228,9 +232,12 @@ def _with_variables(env: dict[str, str], variables: dict[str, str | None]) -> di
 
 
 def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
-                     installer: InstallerOptions | None = None,
-                     say: Callable[[str], None] | None = None) -> Judgement:
-    """Find, for each output the last replay failed on, the smallest set of differences that moves it."""
+                     installer: InstallerOptions | None = None, say: Callable[[str], None] | None = None,
+                     progress: Callable[[int, int, str], None] | None = None) -> Judgement:
+    """Find, for each output the last replay failed on, the smallest set of differences that moves it.
+
+    `say` hears one line per candidate run and per environment built; `progress(done, at_most_left, what)`,
+    when given, hears the runs instead (a live display)."""
     root = Path(root)
     say = say or (lambda _text: None)
     config = load_config(root)
@@ -269,7 +276,7 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
     options = installer or InstallerOptions()
     overlays = Overlays(capture.python, options)
     candidates = Candidates(root, config, lock, plan, overlays, capture.environment.packages, varied, failing,
-                            options, say, max_runs)
+                            options, say, max_runs, progress)
     saved = _snapshot(root, [out for name in names for out in lock.analyses[name].outputs])
     overlays.save_outputs(root, saved)
     results: dict[str, SearchResult[Difference]] = {}

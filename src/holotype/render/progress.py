@@ -12,8 +12,10 @@ from rich.progress import (
     BarColumn,
     DownloadColumn,
     Progress,
+    SpinnerColumn,
     TaskID,
     TextColumn,
+    TimeElapsedColumn,
     TimeRemainingColumn,
     TransferSpeedColumn,
 )
@@ -99,3 +101,32 @@ class AnalysisPanel:
         if self.live is not None:
             self.live.stop()
             self.live = None
+
+
+class SearchBar:
+    """pinpoint: the candidate runs done, the most the search may still need (its budget), and what the
+    current candidate holds at the record. Other messages (installs, full environments) print above it."""
+
+    def __init__(self, console: Console) -> None:
+        self.console = console
+        self.progress: Progress | None = None
+        self.task: TaskID | None = None
+
+    def run(self, done: int, left: int, text: str) -> None:
+        if self.progress is None:
+            self.progress = Progress(SpinnerColumn(), TextColumn("candidate runs"), BarColumn(),
+                                     TextColumn("{task.completed} done, at most {task.fields[left]} left"),
+                                     TimeElapsedColumn(), TextColumn("{task.description}"),
+                                     console=self.console, transient=True)
+            self.progress.start()
+            self.task = self.progress.add_task(text, total=done + left, left=left)
+        assert self.task is not None
+        self.progress.update(self.task, completed=done - 1, total=done + left, left=left, description=text)
+
+    def say(self, text: str) -> None:
+        self.console.print(text, markup=False, highlight=False)
+
+    def close(self) -> None:
+        if self.progress is not None:
+            self.progress.stop()
+            self.progress = None
