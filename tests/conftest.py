@@ -17,6 +17,7 @@ import pytest
 from click.testing import CliRunner
 
 from holotype.cli import app
+from holotype.demo.wheels import write_wheel
 
 FIXTURES = Path(__file__).resolve().parent.parent / "fixtures"
 
@@ -73,24 +74,8 @@ def build_wheel(folder: Path, name: str, version: str, requires: tuple[str, ...]
                 top_level: str | None = None) -> Path:
     """A minimal pure-Python wheel (PEP 427) providing module `name` (or the files `modules` names, under
     top-level `top_level`: a namespace package's part, say)."""
-    dist = name.replace("-", "_")
-    info = f"{dist}-{version}.dist-info"
-    sources = modules or {f"{dist}/__init__.py": module_text or f"VERSION = {version!r}\n"}
-    files: dict[str, bytes] = {
-        **{rel: text.encode() for rel, text in sources.items()},
-        f"{info}/METADATA": (f"Metadata-Version: 2.1\nName: {name}\nVersion: {version}\n"
-                             + "".join(f"Requires-Dist: {r}\n" for r in requires)).encode(),
-        f"{info}/WHEEL": b"Wheel-Version: 1.0\nGenerator: holotype-tests\nRoot-Is-Purelib: true\nTag: py3-none-any\n",
-        f"{info}/top_level.txt": f"{top_level or dist}\n".encode(),
-    }
-    record = "\n".join(_record_line(n, d) for n, d in files.items()) + f"\n{info}/RECORD,,\n"
-    files[f"{info}/RECORD"] = record.encode()
-    folder.mkdir(parents=True, exist_ok=True)
-    path = folder / f"{dist}-{version}-py3-none-any.whl"
-    with zipfile.ZipFile(path, "w") as zf:
-        for n, d in files.items():
-            zf.writestr(n, d)
-    return path
+    sources = modules or {f"{name.replace('-', '_')}/__init__.py": module_text or f"VERSION = {version!r}\n"}
+    return write_wheel(folder, name, version, sources, requires, top_level, generator="holotype-tests")
 
 
 @dataclass

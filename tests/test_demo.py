@@ -119,6 +119,9 @@ def test_demo_end_to_end_then_the_folder_is_a_normal_project(tmp_path: Path, mon
     for words in ("modified: size", "sign flipped as a whole in PC2", "permutation.p_value", "Back to clean",
                   "not a verified one"):
         assert words in result.out
+    # the upgrade event: three invented libraries upgraded, pinpoint names the one that moved the clarity table
+    assert "with only lake-optics 1.0 → 2.0 applied to the recorded environment" in result.out
+    assert "lake-tables 1.0 → 2.0 applied" not in result.out and "lake-units 1.0 → 2.0 applied" not in result.out
     check = run_cli("check", "-C", folder, "--format", "json")
     assert check.code == 0 and json.loads(check.out)["ok"] is True
     replay = run_cli("replay", "-C", folder, "--format", "json")

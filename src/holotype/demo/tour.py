@@ -1,4 +1,4 @@
-"""`holotype demo`: write the invented lake-survey project and walk through record, check, replay and three events."""
+"""`holotype demo`: write the invented lake-survey project and walk through record, check, replay and four events."""
 
 from __future__ import annotations
 
@@ -15,19 +15,22 @@ from rich.text import Text
 
 from holotype.atomic import write_atomic
 from holotype.commands.check import check_project
+from holotype.commands.pinpoint import pinpoint_project
 from holotype.commands.record import record_project
 from holotype.commands.replay import replay_project
+from holotype.demo.environment import build_demo_environment, can_build, install_libraries, wheel_folder
 from holotype.demo.scenario import survey_csv
 from holotype.errors import HolotypeError
 from holotype.findings import Judgement
 from holotype.render.terminal import FindingsTable
+from holotype.standards.installer import InstallerOptions
 
 SCRIPTS = ("summary", "tests", "pca")
 PROJECT_SEED = 20261201
 
 CONFIG = f"""\
 # holotype configuration of the demo project: an invented lake survey.
-data = ["data"]
+@PYTHON@data = ["data"]
 code = ["analysis"]
 seed = {PROJECT_SEED}
 threads = 1
@@ -61,19 +64,31 @@ outputs = ["results/pca_loadings.csv", "results/pca_variance.csv", "results/pca_
 inputs = ["data/lakes.csv"]
 """
 
+# the analysis that uses the demo environment's invented libraries (demo/environment.py)
+CLARITY = """
+[analyses.clarity]
+command = "python analysis/clarity.py"
+outputs = ["results/clarity.csv"]
+inputs = ["data/lakes.csv"]
+"""
+
+CLARITY_WORDS = ", and water clarity from turbidity (CSV) with three invented lake libraries"
 SIGN_FLIP = "    u, s, vt = np.linalg.svd(z, full_matrices=False)\n"
 SIGN_FLIP_AFTER = SIGN_FLIP + ("    vt[1] = -vt[1]  # as another LAPACK build may return it: same component, "
                                "other sign\n    u[:, 1] = -u[:, 1]\n")
 
 
-def write_demo_project(folder: Path) -> None:
-    """The demo project's files: data, analysis scripts, holotype.toml."""
+def write_demo_project(folder: Path, with_environment: bool = False) -> None:
+    """The demo project's files: data, analysis scripts, holotype.toml (with the demo environment and the
+    analysis using its invented libraries when `with_environment`)."""
     (folder / "analysis").mkdir(parents=True, exist_ok=True)
     write_atomic(folder / "data" / "lakes.csv", survey_csv())
-    for name in SCRIPTS:
+    for name in (*SCRIPTS, *(("clarity",) if with_environment else ())):
         text = resources.files("holotype.demo.scripts").joinpath(f"{name}.py").read_text(encoding="utf-8")
         write_atomic(folder / "analysis" / f"{name}.py", text)
-    write_atomic(folder / "holotype.toml", CONFIG)
+    python = '# the demo\'s own environment (holotype demo made it)\npython = ".venv/bin/python"\n'
+    write_atomic(folder / "holotype.toml", CONFIG.replace("@PYTHON@", python if with_environment else "")
+                 + (CLARITY if with_environment else ""))
     write_atomic(folder / "README.txt", "An invented freshwater lake survey (all values made up) set up as a "
                                         "holotype project.\nTry: holotype check, holotype replay, holotype report\n")
 
@@ -85,6 +100,7 @@ class Tour:
         self.folder = folder
         self.console = console
         self.python = python or sys.executable
+        self.with_environment = python is None and can_build()
 
     def step(self, number: int, title: str, words: str) -> None:
         self.console.print()
@@ -104,9 +120,14 @@ class Tour:
         self.step(1, "Write the project",
                   f"An invented survey of six lakes (three clear-water, three turbid), 30 sites each, with "
                   f"depth, temperature, oxygen, pH, conductivity, chlorophyll-a, turbidity and phosphorus.\n"
-                  f"Three analyses: summary statistics (CSV), group tests on chlorophyll-a (JSON), and a PCA "
-                  f"(CSV and .npy). Folder: {folder}")
-        write_demo_project(folder)
+                  f"Analyses: summary statistics (CSV), group tests on chlorophyll-a (JSON), a PCA (CSV and "
+                  f".npy){CLARITY_WORDS if self.with_environment else ''}. Folder: {folder}")
+        write_demo_project(folder, self.with_environment)
+        if self.with_environment:
+            self.console.print("The analyses run in the demo's own environment, .venv: it sees holotype's packages "
+                               "and holds the invented libraries lake-optics, lake-units and lake-tables 1.0.",
+                               highlight=False)
+            self.python = build_demo_environment(folder)
 
         self.step(2, "Record", "holotype record: interpreter, platform, packages, data and code digests, the "
                                "project seed; then it runs each analysis with its own seed and stores the "
@@ -176,7 +197,9 @@ class Tour:
         replay_project(folder, ["tests"], python=self.python)  # put the tests' outputs back as recorded
         self.console.print("Restored the seed.", style="dim")
 
-        self.step(7, "Back to clean", "The project is as recorded again:")
+        if self.with_environment:
+            self.upgrade_event()
+        self.step(8 if self.with_environment else 7, "Back to clean", "The project is as recorded again:")
         final_check = check_project(folder, python=self.python)
         final_replay = replay_project(folder, python=self.python)
         self.show(final_check)
@@ -190,6 +213,30 @@ class Tour:
             self.console.print(f"  {cmd}", highlight=False)
         self.console.print("A reproduced number is not a verified one: holotype shows that results did not "
                            "drift, not that the analysis is sound.", style="dim")
+
+
+    def upgrade_event(self) -> None:
+        folder = self.folder
+        self.step(7, "Event: three libraries upgraded, one of them moves a number",
+                  "All three invented lake libraries are upgraded to 2.0. replay fails on the clarity table; "
+                  "pinpoint then builds candidate environments (the recorded versions, each installed once, put "
+                  "ahead on the import path) and finds which upgrade moved it.")
+        install_libraries(folder, self.python, "2.0")
+        report = replay_project(folder, ["clarity"], python=self.python)
+        self.show(report)
+        self.expect(report, False, "the upgrade to move the clarity table")
+        found = pinpoint_project(folder, installer=InstallerOptions([str(wheel_folder(folder))], None, True),
+                                 say=lambda line: self.console.print(line, style="dim", highlight=False))
+        self.show(found)
+        causes = [f for f in found.findings if f.kind == "pinpoint.cause"]
+        if [f.subject for f in causes] != ["lake-optics"]:
+            raise HolotypeError("the demo expected pinpoint to name lake-optics; see the table above")
+        self.console.print("A named cause is the change that moved the number, not a verdict on which number is "
+                           "right: whether 2.0's coefficient is the better one is for the analyst to judge.",
+                           highlight=False)
+        install_libraries(folder, self.python, "1.0")
+        replay_project(folder, ["clarity"], python=self.python)  # put the clarity table back as recorded
+        self.console.print("Put the libraries back at 1.0.", style="dim")
 
 
 def _baseline_of(folder: Path, output: str) -> bytes:
