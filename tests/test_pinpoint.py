@@ -53,7 +53,7 @@ VALUE = ("import json, os\n" + "".join(f"import lake_tool_{i}\n" for i in range(
          "json.dump({'turbidity': value}, open('results/turbidity.json', 'w'))\n")
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def lakes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
     """A venv of invented packages at 1.0, three recorded projects, then every package upgraded to 2.0:
     only lake-tool-4 2.0 changes the number alone; the pair changes it only together."""
@@ -96,7 +96,6 @@ def pinpoint(root: Path, wheels: object, *extra: str) -> tuple[int, dict, str]:
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_pinpoint_names_the_one_package_that_moves_the_number(lakes: dict[str, object]) -> None:
     root = lakes["single"]
     assert isinstance(root, Path)
@@ -118,7 +117,6 @@ def test_pinpoint_names_the_one_package_that_moves_the_number(lakes: dict[str, o
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_two_packages_that_move_a_number_only_together_are_named_as_a_pair(lakes: dict[str, object]) -> None:
     root = lakes["pair"]
     assert isinstance(root, Path)
@@ -129,7 +127,6 @@ def test_two_packages_that_move_a_number_only_together_are_named_as_a_pair(lakes
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_each_failing_output_gets_its_own_cause_and_the_runs_are_shared(lakes: dict[str, object]) -> None:
     root = lakes["two"]
     assert isinstance(root, Path)
@@ -142,7 +139,6 @@ def test_each_failing_output_gets_its_own_cause_and_the_runs_are_shared(lakes: d
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_a_nondeterministic_analysis_is_reported_as_such_with_no_culprit(lakes: dict[str, object]) -> None:
     root = lakes["noisy"]
     assert isinstance(root, Path)
@@ -181,7 +177,7 @@ def _project(root: Path, python: Path, script: str) -> Path:
     return root
 
 
-@pytest.fixture(scope="module")
+@pytest.fixture(scope="session")
 def since(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
     """Packages removed and added after the record (no upgrades): lake-tool-gone removed and lake-tool-new
     added in one environment; in another, lakens-extra added beside lakens-core, parts of one namespace."""
@@ -206,7 +202,6 @@ def since(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_a_package_added_and_one_removed_since_the_record_are_both_varied(since: dict[str, Path]) -> None:
     code, doc, err = pinpoint(since["added"], since["wheels"])
     [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
@@ -221,7 +216,6 @@ def test_a_package_added_and_one_removed_since_the_record_are_both_varied(since:
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_an_added_namespace_part_falls_back_to_a_full_environment_and_says_so(since: dict[str, Path]) -> None:
     code, doc, err = pinpoint(since["namespace"], since["wheels"])
     [cause] = [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
@@ -256,7 +250,6 @@ def _wait_for(path: Path, words: str, proc: subprocess.Popen[bytes]) -> None:
 
 
 @pytest.mark.slow
-@pytest.mark.xdist_group("pinpoint-environments")
 def test_an_interrupted_search_leaves_the_project_as_it_was_and_no_candidate_behind(
         since: dict[str, Path], tmp_path: Path) -> None:
     import signal
