@@ -15,6 +15,7 @@ import os
 import time
 from array import array
 from dataclasses import dataclass, field
+from itertools import chain
 
 from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
@@ -35,8 +36,8 @@ class DataResult(FingerprintResult):
 
 def _stamp(files: list[ProjectFile]) -> str:
     """One digest of the files' paths and identities; "" when one changed too recently to trust its times."""
-    idents = [f.ident or (-1, -1, -1, -1, -1) for f in files]  # a link: its text is read, not stat-ed
-    numbers = array("q", [n for ident in idents for n in ident])
+    none = (-1, -1, -1, -1, -1)  # a link: its text is read, not stat-ed
+    numbers = array("q", chain.from_iterable([f.ident or none for f in files]))
     newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
     if time.time_ns() - newest < RACY_SECONDS * 1e9:
         return ""

@@ -6,9 +6,9 @@ import bisect
 import os
 import re
 import stat
-from dataclasses import dataclass
 from functools import lru_cache
 from pathlib import Path, PurePosixPath
+from typing import NamedTuple
 
 from holotype.errors import ConfigError, InputError
 
@@ -18,13 +18,16 @@ SKIP_FOLDERS = frozenset({
     ".ruff_cache", ".ipynb_checkpoints", "node_modules", ".tox", ".nox", ".holotype", ".hypothesis",
 })
 GLOB_CHARS = frozenset("*?[")
+CODE_SUFFIXES = (".py", ".ipynb")  # what the default code set takes
 
 
 Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): see digest_cache.py
 
 
-@dataclass(frozen=True, slots=True)
-class ProjectFile:
+class ProjectFile(NamedTuple):
+    """One file the walk found (a tuple: a project of 100,000 files makes 100,000 of them, and a tuple is
+    the cheapest immutable record Python builds)."""
+
     rel: str  # project-relative POSIX path
     path: str  # as the OS names it (a str: building a Path per file costs more than the stat)
     is_link: bool
@@ -124,6 +127,8 @@ class ProjectWalker:
         self._excluder = _Excluder(excludes)
         self._everything: dict[str, ProjectFile] | None = None
         self._keys: list[str] = []
+        self._values: list[ProjectFile] = []
+        self._code: list[str] = []  # the regular files with a code suffix, as the whole-project walk met them
 
     def _rel(self, path: str) -> str:
         return PurePosixPath(Path(os.path.relpath(path, self.root)).as_posix()).as_posix()
@@ -136,13 +141,15 @@ class ProjectWalker:
             raise ConfigError(f"'{rel}' is a symbolic link leading outside the project (to {os.readlink(full)}); "
                               "set allow_outside = true to permit it", self.config_path)
 
-    def _walk_folder(self, folder: str, out: dict[str, ProjectFile]) -> None:
+    def _walk_folder(self, folder: str, out: dict[str, ProjectFile], code: list[str] | None = None) -> None:
+        """Every file below `folder` into `out`; with `code`, the regular files with a code suffix into it."""
         # relative names are built by joining strings: os.path.relpath per file is the slow part otherwise
         start_rel = self._rel(folder)
         if self.excludes and start_rel != "." and is_excluded(start_rel, self.excludes):
             return
         excluded = self._excluder if self.excludes else None
         outputs = self.outputs
+        new = tuple.__new__  # a NamedTuple's own constructor is a Python function: five times slower
         stack = [(folder, "" if start_rel == "." else start_rel + "/")]
         while stack:
             current, prefix = stack.pop()
@@ -152,18 +159,21 @@ class ProjectWalker:
             except OSError:
                 continue  # unreadable folder: nothing inside it can be listed
             for entry in entries:
-                full = entry.path
                 name = entry.name
                 rel = prefix + name
-                if (excluded is not None and excluded(rel, name)) or rel in outputs:
+                if (excluded is not None and excluded(rel, name)) or (outputs and rel in outputs):
                     continue
                 if not name.isascii():
                     _utf8_name(rel)
+                full = entry.path
                 try:
                     if entry.is_file(follow_symlinks=False):  # the common case first
                         st = entry.stat(follow_symlinks=False)
-                        out[rel] = ProjectFile(rel, full, False, st.st_size,
-                                               (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+                        size = st.st_size
+                        out[rel] = new(ProjectFile, (rel, full, False, size,
+                                                     (st.st_dev, st.st_ino, size, st.st_mtime_ns, st.st_ctime_ns)))
+                        if code is not None and name.endswith(CODE_SUFFIXES):
+                            code.append(rel)
                     elif entry.is_symlink():
                         self._check_link(full, rel)
                         out[rel] = ProjectFile(rel, full, True, 0)
@@ -173,6 +183,8 @@ class ProjectWalker:
                         stack.append((full, rel + "/"))
                 except OSError:
                     out[rel] = ProjectFile(rel, full, False, 0)
+                    if code is not None and name.endswith(CODE_SUFFIXES):
+                        code.append(rel)
 
     def _add_path(self, full: str, rel: str, out: dict[str, ProjectFile]) -> None:
         try:
@@ -192,9 +204,10 @@ class ProjectWalker:
         """Every file of the project the walk sees (skipped folders and excludes left out), walked once."""
         if self._everything is None:
             found: dict[str, ProjectFile] = {}
-            self._walk_folder(str(self.root), found)
+            self._walk_folder(str(self.root), found, self._code)
             self._keys = sorted(found)
-            self._everything = {k: found[k] for k in self._keys}
+            self._values = [found[k] for k in self._keys]
+            self._everything = dict(zip(self._keys, self._values))
         return self._everything
 
     def _from_everything(self, rel: str) -> dict[str, ProjectFile] | None:
@@ -208,7 +221,9 @@ class ProjectWalker:
         keys = self._keys
         start = bisect.bisect_left(keys, rel + "/")
         end = bisect.bisect_left(keys, rel + "0")  # "0" is the character after "/"
-        return {k: everything[k] for k in keys[start:end]} or None
+        if start == 0 and end == len(keys) and keys:
+            return everything  # every file of the project is below it (a project of data, say)
+        return dict(zip(keys[start:end], self._values[start:end])) or None
 
     def collect(self, patterns: tuple[str, ...]) -> tuple[dict[str, ProjectFile], list[str]]:
         """Files matched by `patterns` (files, folders or globs), and the patterns that matched nothing."""
@@ -261,5 +276,5 @@ class ProjectWalker:
 
     def code_files(self, data: dict[str, ProjectFile]) -> dict[str, ProjectFile]:
         """Default code set: every .py and .ipynb in the project outside data, skipped folders and excludes."""
-        return {rel: f for rel, f in self.everything().items()
-                if rel.endswith((".py", ".ipynb")) and rel not in data and not f.is_link}
+        everything = self.everything()
+        return {rel: everything[rel] for rel in sorted(self._code) if rel not in data}
