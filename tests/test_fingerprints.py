@@ -235,3 +235,30 @@ def test_glob_patterns(tmp_path: Path) -> None:
     write(tmp_path / "raw" / "2026" / "b.txt", "x")
     files, unmatched = ProjectWalker(tmp_path).collect(("raw/**/*.csv", "nothing/*.csv"))
     assert list(files) == ["raw/2025/a.csv", "raw/2026/b.csv"] and unmatched == ["nothing/*.csv"]
+
+
+def test_the_digest_workers_never_run_the_callers_script_again(tmp_path: Path) -> None:
+    # A worker pool started by forkserver or spawn imports the main module again in every worker
+    # (Python's multiprocessing documentation, "Safe importing of main module"): a user's script calling
+    # the Python API without a main guard would then run again, top to bottom, once per worker.
+    import subprocess
+    import sys
+
+    from holotype.capture.fingerprints import PROCESS_MIN_FILES
+
+    project = tmp_path / "many"
+    (project / "data").mkdir(parents=True)
+    for i in range(PROCESS_MIN_FILES + 500):
+        (project / "data" / f"f{i:05d}.txt").write_text(str(i) * 10)
+    (project / "holotype.toml").write_text('data = ["data"]\nseed = 1\n')
+    runs = tmp_path / "runs.txt"
+    script = tmp_path / "analysis_notes.py"
+    script.write_text(f"open({str(runs)!r}, 'a').write('ran\\n')\nimport holotype\n"
+                      f"print(holotype.check({str(project)!r}).ok)\n")
+    env = {**os.environ, "HOLOTYPE_CACHE_DIR": str(tmp_path / "cache")}
+    assert subprocess.run([sys.executable, "-m", "holotype", "record", "--no-run", "--quiet", "-C", str(project)],
+                          env=env).returncode == 0
+    shutil.rmtree(tmp_path / "cache")  # every file is hashed again, by the workers
+    done = subprocess.run([sys.executable, str(script)], env=env, capture_output=True, text=True)
+    assert done.returncode == 0 and done.stdout.strip() == "True", done.stderr[-2000:]
+    assert runs.read_text() == "ran\n"

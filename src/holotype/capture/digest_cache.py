@@ -14,6 +14,7 @@ import time
 from collections.abc import Sequence
 from pathlib import Path
 
+from holotype.capture.hashing import Identity
 from holotype.errors import HolotypeError
 
 RACY_SECONDS = 2.0
@@ -23,12 +24,6 @@ _SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
     PRIMARY KEY (dev, ino))"""
 # what an interpreter's numeric inspection answered, keyed by what decides it (capture/numerics.py)
 _FACTS = "CREATE TABLE IF NOT EXISTS facts (key TEXT PRIMARY KEY, doc TEXT NOT NULL, stored REAL NOT NULL)"
-
-Identity = tuple[int, int, int, int, int]
-
-
-def identity_of(st: os.stat_result) -> Identity:
-    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
 
 
 def default_cache_path() -> Path:

@@ -3,19 +3,28 @@
 from __future__ import annotations
 
 import errno
-import hashlib
 import os
-import stat
+import subprocess
+import sys
 import threading
 from collections import deque
 from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Protocol
 
-from holotype.capture.digest_cache import DigestCache, Identity, identity_of
+from holotype.capture.digest_cache import DigestCache
+from holotype.capture.hashing import (
+    Identity,
+    Outcome,
+    Unstable,
+    decode_answer,
+    encode_requests,
+    hash_stable,
+    identity_of,
+    sha256_file,
+)
 from holotype.capture.walk import ProjectFile
 from holotype.records import FileRecord
-
-CHUNK = 1 << 20  # hashlib releases the GIL for updates this large, so threads really run in parallel
 
 
 class HashProgress(Protocol):
@@ -43,116 +52,71 @@ class _Counter:
             self.bytes += n
 
 
-_buffers = threading.local()
-
-
-def _buffer() -> bytearray:
-    # one reusable buffer per thread: allocating 1 MiB per file dominates when files are small
-    buf = getattr(_buffers, "buf", None)
-    if buf is None:
-        buf = _buffers.buf = bytearray(CHUNK)
-    return buf
-
-
-_OPEN_FLAGS = (os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_NONBLOCK", 0)
-               | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
-
-
-def sha256_file(path: str | os.PathLike[str], counter: _Counter | None = None) -> str:
-    """Stream the file through SHA-256 (FIPS 180-4) in 1 MiB chunks.
-
-    Opened without following a link and without blocking, then checked to be a regular file, so a file
-    swapped for a link, a FIFO or a device while holotype works is refused (as OSError), never read."""
-    h = hashlib.sha256()
-    buf = _buffer()
-    view = memoryview(buf)
-    fd = os.open(path, _OPEN_FLAGS)
-    if not stat.S_ISREG(os.fstat(fd).st_mode):
-        os.close(fd)
-        raise OSError(errno.EINVAL, "not a regular file (a link, pipe or device took its place)")
-    with open(fd, "rb", buffering=0) as fh:
-        while True:
-            n = fh.readinto(buf)
-            if not n:
-                break
-            h.update(view[:n])
-            if counter is not None:
-                counter.add(n)
-    return h.hexdigest()
-
-
 def _hash_stable(path: str, counter: _Counter, before: Identity) -> tuple[str, Identity]:
     """Hash, then check the file did not change meanwhile; retry once, then give up loudly."""
-    for attempt in range(2):
-        if attempt:
-            before = identity_of(os.stat(path))
-        digest = sha256_file(path, counter)
-        after = identity_of(os.stat(path))
-        if (before[2], before[3]) == (after[2], after[3]):
-            return digest, after
-    raise _Unstable()
-
-
-class _Unstable(Exception):
-    pass
-
-
-Outcome = tuple[str, Identity] | OSError | _Unstable
+    return hash_stable(path, before, lambda p: sha256_file(p, counter))
 
 
 SMALL = 64 * 1024  # many files up to this size go to worker processes (for them, the per-file work dominates)
-PROCESS_MIN_FILES = 4000  # fewer small files than this: threads (a worker process costs some 50 ms to start)
+PROCESS_MIN_FILES = 4000  # fewer small files than this: threads (a worker process costs some 20 ms to start)
 BATCH = 1000
-
-
-def digest_batch(batch: list[tuple[str, Identity]]) -> list[str | tuple[str, object, object]]:
-    """Digest small files in a worker process. Each answer is the digest (the file kept the identity it was
-    walked with: the usual case, and cheap to send back), or ("ok", digest, identity), ("os", errno, text)
-    or ("unstable", 0, 0)."""
-    out: list[str | tuple[str, object, object]] = []
-    counter = _Counter()
-    for path, before in batch:
-        try:
-            digest, after = _hash_stable(path, counter, before)
-            out.append(digest if after == before else ("ok", digest, after))
-        except _Unstable:
-            out.append(("unstable", 0, 0))
-        except OSError as exc:
-            out.append(("os", exc.errno, exc.strerror))
-    return out
 
 
 def _hash_in_processes(items: list[tuple[ProjectFile, Identity]], workers: int, counter: _Counter,
                        progress: HashProgress | None) -> list[Outcome]:
-    """Many small files: Python's per-file work holds the GIL, so batches go to worker processes."""
-    import multiprocessing
-    from concurrent.futures import ProcessPoolExecutor
+    """Many small files: Python's per-file work holds the GIL, so they go to worker processes of their own
+    (hashing.py), fed in batches while they answer. Any trouble starting them: OSError, and threads do it."""
+    import holotype
 
-    methods = multiprocessing.get_all_start_methods()
-    context = multiprocessing.get_context("forkserver" if "forkserver" in methods else "spawn")
-    outcomes: list[Outcome] = []
-    batches = [[(item.path, ident) for item, ident in items[i:i + BATCH]] for i in range(0, len(items), BATCH)]
-    done = 0
-    with ProcessPoolExecutor(max_workers=workers, mp_context=context) as pool:
-        for batch, answers in zip(batches, pool.map(digest_batch, batches)):
-            for (_, before), answer in zip(batch, answers):
-                if isinstance(answer, str):
-                    outcomes.append((answer, before))
-                    counter.add(before[2])
-                    continue
-                kind, a, b = answer
-                if kind == "ok":
-                    assert isinstance(a, str) and isinstance(b, tuple)
-                    outcomes.append((a, b))
-                    counter.add(b[2])
-                elif kind == "unstable":
-                    outcomes.append(_Unstable())
-                else:
-                    assert isinstance(a, int) and isinstance(b, str)
-                    outcomes.append(OSError(a, b))
-            done += len(batch)
-            if progress is not None:
-                progress.advance(counter.bytes, done)
+    package_home = str(Path(holotype.__file__).resolve().parents[1])
+    env = {**os.environ, "PYTHONPATH": os.pathsep.join([package_home, *filter(None, [os.environ.get("PYTHONPATH")])])}
+    shares = [items[k::workers] for k in range(workers)]
+    procs = [subprocess.Popen([sys.executable, "-m", "holotype.capture.hashing"], stdin=subprocess.PIPE,
+                              stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env) for _ in shares]
+    answers: list[list[Outcome]] = [[] for _ in shares]
+    done = [0]
+
+    def feed(k: int) -> None:
+        stdin = procs[k].stdin
+        assert stdin is not None
+        try:
+            for i in range(0, len(shares[k]), BATCH):
+                stdin.write(encode_requests((item.path, ident) for item, ident in shares[k][i:i + BATCH]))
+                stdin.flush()
+        except OSError:
+            pass  # the worker is gone: its missing answers say so
+        finally:
+            stdin.close()
+
+    def read(k: int) -> None:
+        stdout = procs[k].stdout
+        assert stdout is not None
+        for (_, before), line in zip(shares[k], stdout):
+            outcome = decode_answer(line, before)
+            if isinstance(outcome, tuple):
+                counter.add(outcome[1][2])
+            answers[k].append(outcome)
+            done[0] += 1
+
+    threads = [threading.Thread(target=job, args=(k,), daemon=True) for k in range(len(shares)) for job in (feed, read)]
+    for t in threads:
+        t.start()
+    try:
+        for t in threads:
+            while t.is_alive():
+                t.join(timeout=0.1)
+                if progress is not None:
+                    progress.advance(counter.bytes, done[0])
+    finally:
+        for proc in procs:
+            if proc.poll() is None:
+                proc.kill()
+            proc.wait()
+    if any(len(a) != len(share) for a, share in zip(answers, shares)):
+        raise OSError(errno.EIO, "a digest worker stopped early")
+    outcomes: list[Outcome] = [OSError(0, "not hashed")] * len(items)
+    for k, share_answers in enumerate(answers):
+        outcomes[k::workers] = share_answers
     return outcomes
 
 
@@ -188,7 +152,7 @@ def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, work
             try:
                 item, st = items[index]
                 outcomes[index] = _hash_stable(item.path, counter, st)
-            except (OSError, _Unstable) as exc:
+            except (OSError, Unstable) as exc:
                 outcomes[index] = exc
             with lock:
                 done[0] += 1
@@ -254,7 +218,7 @@ def fingerprint_files(files: dict[str, ProjectFile], *, cache: DigestCache | Non
                 result.records[item.rel] = FileRecord(item.rel, "file", size=ident[2], sha256=digest)
                 result.files_hashed += 1
                 fresh.append((ident, digest))
-            elif isinstance(outcome, _Unstable):
+            elif isinstance(outcome, Unstable):
                 result.problems[item.rel] = ("unstable", "kept changing while being read; "
                                              "stop whatever writes it and record again")
             else:

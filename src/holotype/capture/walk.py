@@ -10,6 +10,7 @@ from functools import lru_cache
 from pathlib import Path, PurePosixPath
 from typing import NamedTuple
 
+from holotype.capture.hashing import Identity
 from holotype.errors import ConfigError, InputError
 
 # Never fingerprinted: version control, virtual environments, caches, holotype's own store.
@@ -21,7 +22,6 @@ GLOB_CHARS = frozenset("*?[")
 CODE_SUFFIXES = (".py", ".ipynb")  # what the default code set takes
 
 
-Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): see digest_cache.py
 
 
 class ProjectFile(NamedTuple):

@@ -1,0 +1,144 @@
+"""SHA-256 of one file, read safely; and the worker that digests many small files in another process.
+
+Standard library only, because `python -m holotype.capture.hashing` is that worker: fingerprints.py
+starts one per core and feeds it NUL-separated (path, identity) pairs on standard input; it answers one
+line per file, in order. Its own process, not a multiprocessing pool: a pool started by forkserver or
+spawn imports the caller's main module again in every worker, which runs the top of a user's script
+that calls holotype's Python API a second time.
+"""
+
+from __future__ import annotations
+
+import errno
+import hashlib
+import os
+import stat
+import sys
+import threading
+from collections.abc import Callable, Iterable
+from typing import BinaryIO, Protocol
+
+CHUNK = 1 << 20  # hashlib releases the GIL for updates this large, so threads really run in parallel
+
+Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): see digest_cache.py
+
+
+class ByteCounter(Protocol):
+    def add(self, n: int) -> None: ...
+
+
+def identity_of(st: os.stat_result) -> Identity:
+    return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns)
+
+
+_buffers = threading.local()
+
+
+def _buffer() -> bytearray:
+    # one reusable buffer per thread: allocating 1 MiB per file dominates when files are small
+    buf = getattr(_buffers, "buf", None)
+    if buf is None:
+        buf = _buffers.buf = bytearray(CHUNK)
+    return buf
+
+
+_OPEN_FLAGS = (os.O_RDONLY | getattr(os, "O_NOFOLLOW", 0) | getattr(os, "O_NONBLOCK", 0)
+               | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_BINARY", 0))
+
+
+def sha256_file(path: str | bytes | os.PathLike[str], counter: ByteCounter | None = None) -> str:
+    """Stream the file through SHA-256 (FIPS 180-4) in 1 MiB chunks.
+
+    Opened without following a link and without blocking, then checked to be a regular file, so a file
+    swapped for a link, a FIFO or a device while holotype works is refused (as OSError), never read."""
+    h = hashlib.sha256()
+    buf = _buffer()
+    view = memoryview(buf)
+    fd = os.open(path, _OPEN_FLAGS)
+    if not stat.S_ISREG(os.fstat(fd).st_mode):
+        os.close(fd)
+        raise OSError(errno.EINVAL, "not a regular file (a link, pipe or device took its place)")
+    with open(fd, "rb", buffering=0) as fh:
+        while True:
+            n = fh.readinto(buf)
+            if not n:
+                break
+            h.update(view[:n])
+            if counter is not None:
+                counter.add(n)
+    return h.hexdigest()
+
+
+class Unstable(Exception):
+    """The file kept changing while it was read."""
+
+
+def hash_stable(path: str | bytes, before: Identity, digest: Callable[[str | bytes], str]) -> tuple[str, Identity]:
+    """Hash, then check the file did not change meanwhile; retry once, then give up loudly."""
+    for attempt in range(2):
+        if attempt:
+            before = identity_of(os.stat(path))
+        found = digest(path)
+        after = identity_of(os.stat(path))
+        if (before[2], before[3]) == (after[2], after[3]):
+            return found, after
+    raise Unstable()
+
+
+Outcome = tuple[str, Identity] | OSError | Unstable
+
+
+def encode_requests(items: Iterable[tuple[str, Identity]]) -> bytes:
+    """What the worker reads: path NUL identity NUL, for each file."""
+    return b"".join(os.fsencode(path) + b"\0" + " ".join(map(str, ident)).encode() + b"\0" for path, ident in items)
+
+
+def decode_answer(line: bytes, before: Identity) -> Outcome:
+    """One answer line: '=' digest (identity as walked), '+' digest and the new identity, '!' errno and
+    message, '~' (unstable)."""
+    mark, rest = line[:1], line[1:].rstrip(b"\n")
+    if mark == b"=":
+        return rest.decode(), before
+    if mark == b"+":
+        digest, *numbers = rest.decode().split()
+        a, b, c, d, e = (int(n) for n in numbers)
+        return digest, (a, b, c, d, e)
+    if mark == b"!":
+        code, _, text = rest.decode("utf-8", "replace").partition(" ")
+        return OSError(int(code), text)
+    if mark == b"~":
+        return Unstable()
+    return OSError(errno.EIO, "the digest worker gave no answer")
+
+
+def serve(source: BinaryIO, sink: BinaryIO) -> None:
+    """The worker: answer each request of `source` on `sink`, in order, as requests arrive."""
+    pending = b""
+    digest: Callable[[str | bytes], str] = sha256_file
+    while True:
+        block = source.read(1 << 16)
+        if not block:
+            break
+        fields = (pending + block).split(b"\0")
+        pending = b"\0".join(fields[-2:]) if len(fields) % 2 == 0 else fields[-1]
+        usable = fields[:-2] if len(fields) % 2 == 0 else fields[:-1]
+        out = []
+        for i in range(0, len(usable) - 1, 2):
+            path = usable[i]
+            a, b, c, d, e = (int(n) for n in usable[i + 1].split())
+            before = (a, b, c, d, e)
+            try:
+                found, after = hash_stable(path, before, digest)
+                out.append(b"=" + found.encode() + b"\n" if after == before else
+                           b"+" + found.encode() + b" " + " ".join(map(str, after)).encode() + b"\n")
+            except Unstable:
+                out.append(b"~\n")
+            except OSError as exc:
+                text = (exc.strerror or "error").replace("\n", " ")
+                out.append(f"!{exc.errno or 0} {text}\n".encode())
+        sink.write(b"".join(out))
+        sink.flush()
+
+
+if __name__ == "__main__":
+    serve(sys.stdin.buffer, sys.stdout.buffer)
