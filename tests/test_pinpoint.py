@@ -299,3 +299,41 @@ def test_the_live_display_shows_runs_done_and_the_most_left() -> None:
     shown = sink.getvalue()
     assert "1 done, at most 30 left" in shown and "2 of 8 differences applied" in shown
     assert "building a full candidate environment" in shown
+
+
+def test_a_data_edit_is_listed_not_varied_and_nothing_is_blamed(tmp_path: Path) -> None:
+    import sys
+
+    root = _project(tmp_path / "edited", Path(sys.executable),
+                    "import json, os\nos.makedirs('results', exist_ok=True)\n"
+                    "depth = float(open('data/secchi.csv').read().split()[-1].split(',')[1])\n"
+                    "json.dump({'turbidity': 1 / depth}, open('results/turbidity.json', 'w'))\n")
+    (root / "data" / "secchi.csv").write_text("site,depth\nnorth,2.6\n")  # a hand edit after the record
+    code, doc, _ = pinpoint(root, tmp_path / "no-wheels")
+    [edit] = [f for f in doc["findings"] if f["kind"] == "pinpoint.not_varied"]
+    assert edit["subject"] == "data/secchi.csv" and "not varied" in edit["message"]
+    assert "cannot be put back" in edit["message"]
+    assert code == 1 and not [f for f in doc["findings"] if f["kind"] == "pinpoint.cause"]
+    assert [f["kind"] for f in doc["findings"] if f["severity"] == "fail"] == ["pinpoint.unexplained"]
+
+
+def test_a_package_recorded_from_git_is_put_back_from_its_commit(monkeypatch: pytest.MonkeyPatch) -> None:
+    import sys
+
+    from holotype.records import Origin, PackageRecord
+    from holotype.run.overlays import Overlays
+    from holotype.standards.installer import Installer, InstallerOptions
+    from holotype.standards.requirements import requirement_line
+
+    asked: list[tuple[str, ...]] = []
+    monkeypatch.setattr(Installer, "run", lambda self, what, *args, **kw: asked.append(args) or "")
+    pkg = PackageRecord("lake-tool-git", "0.3.dev1", Origin("vcs", "https://example.org/lake-tool.git", vcs="git",
+                                                             commit="0123456789abcdef0123456789abcdef01234567"))
+    overlays = Overlays(sys.executable, InstallerOptions(), {pkg.name: requirement_line(pkg)})
+    try:
+        overlays.install(pkg.name, pkg.version)
+        overlays.install("lake-tool-4", "1.0")
+    finally:
+        overlays.close(False)
+    assert asked[0][-1] == "lake-tool-git @ git+https://example.org/lake-tool.git@0123456789abcdef0123456789abcdef01234567"
+    assert asked[1][-1] == "lake-tool-4==1.0"

@@ -42,6 +42,7 @@ from holotype.run.plan import Plan, make_plan
 from holotype.run.runner import make_runner
 from holotype.search import OutOfRuns, SearchResult, smallest_cause
 from holotype.standards.installer import InstallerOptions
+from holotype.standards.requirements import requirement_line
 from holotype.store import ProjectStore
 
 FAILING = ("output.mismatch", "output.shape", "output.missing", "output.unreadable")
@@ -274,7 +275,8 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
         return Judgement("pinpoint", apply_policy(findings, config.policy), warnings=config.warnings)
     remove_stale_sessions(root)
     options = installer or InstallerOptions()
-    overlays = Overlays(capture.python, options)
+    overlays = Overlays(capture.python, options, {n: requirement_line(p, root) for n, p in lock.packages.items()
+                                                  if p.origin.kind in ("vcs", "archive")})
     candidates = Candidates(root, config, lock, plan, overlays, capture.environment.packages, varied, failing,
                             options, say, max_runs, progress)
     saved = _snapshot(root, [out for name in names for out in lock.analyses[name].outputs])
@@ -317,7 +319,9 @@ def _not_varied(lock: LockContents, data: dict[str, FileRecord], folders: dict[s
     own += compare_file_sets("code", lock.code, code)
     for f in own:
         findings.append(Finding(f.area, f.subject, "pinpoint.not_varied",
-                                f"{f.message}: your own change, not varied by the search"))
+                                f"{f.message}: your own change, not varied by the search"
+                                + (" (holotype keeps digests of data, not the recorded bytes, so the old file "
+                                   "cannot be put back)" if f.area == "data" else "")))
     if seed != lock.project_seed:
         findings.append(Finding("seed", "project", "pinpoint.not_varied", "the project seed differs from the "
                                 "recorded one: your own change, not varied by the search"))

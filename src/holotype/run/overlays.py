@@ -116,8 +116,11 @@ def _put_back(project: Path, folder: Path, outputs: dict[str, str | None]) -> No
 class Overlays:
     """The session's install folders, one per (package, version)."""
 
-    def __init__(self, python: str, options: InstallerOptions) -> None:
+    def __init__(self, python: str, options: InstallerOptions, requirements: dict[str, str] | None = None) -> None:
+        """`requirements`: how to ask the installer for a package's recorded version where an exact pin
+        is not enough (a git commit, an archive URL: standards/requirements.py); by default name==version."""
         self.python = python
+        self.requirements = requirements or {}
         self.folder = overlay_root() / f"{os.getpid()}-{time.time_ns()}"
         self.folder.mkdir(parents=True)
         cache = wheel_cache()
@@ -132,7 +135,7 @@ class Overlays:
             target = self.folder / f"{name}-{version}"
             self.installer.run(f"installing {name} {version} for the candidate environments", "install",
                                "--no-deps", "--no-compile", "--quiet", "--target", str(target),
-                               *self.options.args(), f"{name}=={version}")
+                               *self.options.args(), self.requirements.get(name, f"{name}=={version}"))
             self.installed[key] = target
         return self.installed[key]
 
