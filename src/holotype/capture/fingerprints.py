@@ -62,6 +62,18 @@ PROCESS_MIN_FILES = 4000  # fewer small files than this: threads (a worker proce
 BATCH = 1000
 
 
+def _run_all(threads: list[threading.Thread], counter: _Counter, done: list[int],
+             progress: HashProgress | None) -> None:
+    """Start the threads and wait for them, telling the progress display how far they are."""
+    for t in threads:
+        t.start()
+    for t in threads:
+        while t.is_alive():
+            t.join(timeout=0.1)
+            if progress is not None:
+                progress.advance(counter.bytes, done[0])
+
+
 def _hash_in_processes(items: list[tuple[ProjectFile, Identity]], workers: int, counter: _Counter,
                        progress: HashProgress | None) -> list[Outcome]:
     """Many small files: Python's per-file work holds the GIL, so they go to worker processes of their own
@@ -99,14 +111,8 @@ def _hash_in_processes(items: list[tuple[ProjectFile, Identity]], workers: int, 
             done[0] += 1
 
     threads = [threading.Thread(target=job, args=(k,), daemon=True) for k in range(len(shares)) for job in (feed, read)]
-    for t in threads:
-        t.start()
     try:
-        for t in threads:
-            while t.is_alive():
-                t.join(timeout=0.1)
-                if progress is not None:
-                    progress.advance(counter.bytes, done[0])
+        _run_all(threads, counter, done, progress)
     finally:
         for proc in procs:
             if proc.poll() is None:
@@ -127,11 +133,13 @@ def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, work
     count = max(1, min(workers or os.cpu_count() or 1, len(items)))
     small_from = next((i for i, (_, ident) in enumerate(items) if ident[2] <= SMALL), len(items))
     if count > 1 and len(items) - small_from >= PROCESS_MIN_FILES:  # items come largest first
+        own = _Counter()  # added to the total only if the workers finish: else threads hash it all again
         try:
-            tail = _hash_in_processes(items[small_from:], count, counter, progress)
+            tail = _hash_in_processes(items[small_from:], count, own, progress)
         except (OSError, RuntimeError, ImportError):
             tail = None  # no worker processes here (a sandbox, say): threads do it all
         if tail is not None:
+            counter.add(own.bytes)
             head = _hash_all(items[:small_from], counter, workers, None) if small_from else []
             if progress is not None:
                 progress.end()
@@ -158,14 +166,8 @@ def _hash_all(items: list[tuple[ProjectFile, Identity]], counter: _Counter, work
                 done[0] += 1
 
     threads = [threading.Thread(target=work, name=f"holotype-hash-{i}", daemon=True) for i in range(count)]
-    for t in threads:
-        t.start()
     try:
-        for t in threads:
-            while t.is_alive():
-                t.join(timeout=0.1)
-                if progress is not None:
-                    progress.advance(counter.bytes, done[0])
+        _run_all(threads, counter, done, progress)
     finally:
         if progress is not None:
             progress.end()
