@@ -46,6 +46,7 @@ from holotype.standards.requirements import requirement_line
 from holotype.store import ProjectStore
 
 FAILING = ("output.mismatch", "output.shape", "output.missing", "output.unreadable")
+KEPT_BYTES = 64 << 20  # a candidate's output up to this size is kept to compare with the failing replay's
 
 
 @dataclass(frozen=True)
@@ -120,11 +121,11 @@ class Candidates:
     """Builds and runs candidate environments: every difference not applied is held at the record."""
 
     def __init__(self, root: Path, config: Config, lock: LockContents, plan: Plan, overlays: Overlays,
-                 now_pkgs: dict[str, PackageRecord], varied: list[Difference], failing: list[str],
-                 installer: InstallerOptions, say: Callable[[str], None], max_runs: int,
+                 now_pkgs: dict[str, PackageRecord], varied: list[Difference], installer: InstallerOptions,
+                 say: Callable[[str], None], max_runs: int,
                  progress: Callable[[int, int, str], None] | None = None) -> None:
         self.root, self.config, self.lock, self.plan, self.overlays = root, config, lock, plan, overlays
-        self.now_pkgs, self.varied, self.failing, self.installer = now_pkgs, varied, failing, installer
+        self.now_pkgs, self.varied, self.installer = now_pkgs, varied, installer
         self.say, self.max_runs, self.progress = say, max_runs, progress
         self.store = ProjectStore(root)
         self.runner = make_runner(self.store, jobs=1, threads=config.threads, cluster=None, digest_file=LOCK_NAME)
@@ -203,9 +204,9 @@ class Candidates:
             for f in judged:
                 if f.severity == "fail" and f.kind in FAILING and f.subject not in outcome.moved:
                     outcome.moved[f.subject] = f.message
-            for out in record.outputs:
+            for out in record.outputs:  # kept for the comparison with the failing replay (small enough ones)
                 produced = result.outputs.get(out)
-                outcome.outputs[out] = produced.data if produced is not None else None
+                outcome.outputs[out] = produced.data if produced is not None and produced.size <= KEPT_BYTES else None
         return outcome
 
     def twice_differ(self) -> str:
@@ -277,8 +278,8 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
     options = installer or InstallerOptions()
     overlays = Overlays(capture.python, options, {n: requirement_line(p, root) for n, p in lock.packages.items()
                                                   if p.origin.kind in ("vcs", "archive")})
-    candidates = Candidates(root, config, lock, plan, overlays, capture.environment.packages, varied, failing,
-                            options, say, max_runs, progress)
+    candidates = Candidates(root, config, lock, plan, overlays, capture.environment.packages, varied, options, say,
+                            max_runs, progress)
     saved = _snapshot(root, [out for name in names for out in lock.analyses[name].outputs])
     overlays.save_outputs(root, saved)
     results: dict[str, SearchResult[Difference]] = {}
