@@ -295,7 +295,7 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
             if any(not r.proven and not r.exhausted for r in results.values()):
                 nondeterministic = candidates.twice_differ()
     finally:
-        overlays.put_back(root)
+        overlays.put_back()
         kept = overlays.close(keep)
         candidates.close()
     for out in failing:

@@ -73,8 +73,12 @@ def remove_stale_sessions(project: Path, root: Path | None = None) -> int:
         saved = _saved_outputs(folder)
         if saved is not None and saved[0] != str(Path(project).resolve()) and Path(saved[0]).is_dir():
             for item in folder.iterdir():
-                if item.name not in (_SAVED, _SAVED_LIST):
-                    shutil.rmtree(item, ignore_errors=True) if item.is_dir() else item.unlink(missing_ok=True)
+                if item.name in (_SAVED, _SAVED_LIST):
+                    continue
+                if item.is_dir() and not item.is_symlink():
+                    shutil.rmtree(item, ignore_errors=True)
+                else:
+                    item.unlink(missing_ok=True)
             continue
         if saved is not None and saved[0] == str(Path(project).resolve()):
             _put_back(Path(saved[0]), folder, saved[1])
@@ -105,6 +109,8 @@ def _put_back(project: Path, folder: Path, outputs: dict[str, str | None]) -> No
             if path.is_file() and not path.is_symlink():
                 path.unlink()
             continue
+        if not kept.isdigit():
+            continue  # holotype names each saved output by its number: anything else is not its own
         try:
             data = (folder / _SAVED / kept).read_bytes()
         except OSError:
@@ -181,7 +187,8 @@ class Overlays:
         write_atomic(self.folder / _SAVED_LIST, json.dumps({"project": str(Path(project).resolve()),
                                                              "outputs": names}))
 
-    def put_back(self, project: Path) -> None:
+    def put_back(self) -> None:
+        """The project's outputs as they were saved (save_outputs)."""
         saved = _saved_outputs(self.folder)
         if saved is not None:
             _put_back(Path(saved[0]), self.folder, saved[1])
