@@ -113,3 +113,30 @@ def test_defaults_pass_last_bit_noise_and_catch_real_change() -> None:
     changed = x.copy()
     changed[17] *= 1 + 1e-6  # one value moved in its sixth digit
     assert judge(x, changed, DEFAULT_TOLERANCE).passed.tolist().count(False) == 1
+
+
+def test_the_tally_keeps_the_least_lre_and_the_decades_of_every_value() -> None:
+    # the tally takes the least LRE from the largest relative error; checked against the LRE of every value
+    # and a decade count by np.log10 per value (with zeros, NaN, infinities and an overflowing difference)
+    from holotype.compare.tally import Tally
+
+    rng = np.random.default_rng(5)
+    for special in (False, True):
+        e = rng.normal(size=5000) * 10.0 ** rng.integers(-8, 8, size=5000)
+        a = e * (1 + rng.normal(size=5000) * 10.0 ** rng.integers(-16, -1, size=5000))
+        a[:50], e[50:60] = e[:50], 0.0
+        if special:
+            e[60:63], a[63:66], e[66], a[66] = np.nan, np.inf, 1.7e308, -1.7e308
+        tally = Tally("x", Tolerance(rtol=1e-9))
+        verdict = judge(e, a, Tolerance(rtol=1e-9))
+        tally.add_numeric(e, a, verdict, str)
+        finite = np.isfinite(e) & np.isfinite(a)
+        assert tally.min_lre == min(MAX_LRE, float(log_relative_error(e[finite], a[finite]).min()))
+        rel = verdict.rel_err
+        with np.errstate(divide="ignore"):
+            decades = np.floor(np.log10(rel[(rel != 0) & np.isfinite(rel)])).astype(int)
+        expected = {f"1e{d}": int((decades == d).sum()) for d in set(decades.tolist())}
+        expected["exact"] = int((rel == 0).sum())
+        if (~np.isfinite(rel)).any():
+            expected["inf"] = int((~np.isfinite(rel)).sum())
+        assert tally.decades == expected

@@ -8,7 +8,7 @@ from typing import Any
 
 import numpy as np
 
-from holotype.compare.numbers import MAX_LRE, Verdict, log_relative_error
+from holotype.compare.numbers import MAX_LRE, Verdict
 from holotype.findings import json_number
 from holotype.phrasing import clip
 from holotype.tolerance import Tolerance
@@ -54,30 +54,45 @@ class Tally:
         self.mismatches += nfail
         abs_err, rel_err = verdict.abs_err, verdict.rel_err
         self.max_abs = max(self.max_abs, float(abs_err.max()))
-        self.max_rel = max(self.max_rel, float(rel_err.max()))
-        finite = np.isfinite(expected) & np.isfinite(actual)
-        if finite.any():
-            self.min_lre = min(self.min_lre, float(log_relative_error(expected[finite], actual[finite]).min()))
+        chunk_max_rel = float(rel_err.max())
+        self.max_rel = max(self.max_rel, chunk_max_rel)
+        # LRE falls as the relative error grows, so the chunk's least LRE is that of its largest finite
+        # relative error (the same |a-e|/|e|, absolute where e == 0): one log instead of one per value
+        if verdict.all_finite:
+            worst: float | None = chunk_max_rel
+        else:
+            finite = np.isfinite(expected) & np.isfinite(actual)
+            worst = float(np.max(rel_err, where=finite, initial=0.0)) if finite.any() else None
+        if worst is not None:
+            self.min_lre = min(self.min_lre, MAX_LRE if worst == 0 else
+                               float(np.clip(-np.log10(worst), 0.0, MAX_LRE)) if math.isfinite(worst) else 0.0)
         elif nfail:
             self.min_lre = 0.0
         # decade histogram of relative errors
-        exact = int((rel_err == 0).sum())
+        moved = rel_err != 0
+        nonzero = rel_err[moved]
+        exact = n - int(nonzero.size)
         if exact:
             self.decades["exact"] = self.decades.get("exact", 0) + exact
-        nonzero = rel_err[rel_err != 0]
         if nonzero.size:
             infinite = ~np.isfinite(nonzero)
             if infinite.any():
                 self.decades["inf"] = self.decades.get("inf", 0) + int(infinite.sum())
+                nonzero = nonzero[~infinite]
             with np.errstate(divide="ignore"):
-                exps = np.floor(np.log10(nonzero[~infinite])).astype(np.int64)
-            values, counts = np.unique(exps, return_counts=True)
-            for v, c in zip(values.tolist(), counts.tolist()):
-                label = f"1e{v}"
-                self.decades[label] = self.decades.get(label, 0) + c
+                exps = np.floor(np.log10(nonzero)).astype(np.int64)
+            if exps.size:
+                low = int(exps.min())
+                counts = np.bincount(exps - low)  # a few hundred decades at most: counting beats sorting
+                for offset in np.flatnonzero(counts).tolist():
+                    label = f"1e{low + offset}"
+                    self.decades[label] = self.decades.get(label, 0) + int(counts[offset])
         # the worst value: the largest relative error, failures first
-        pool = np.where(failed)[0] if nfail else np.arange(n)
-        i = int(pool[np.argmax(rel_err[pool])])
+        if nfail:
+            pool = np.flatnonzero(failed)
+            i = int(pool[np.argmax(rel_err[pool])])
+        else:
+            i = int(np.argmax(rel_err))
         if (nfail and not self.worst_failed) or (bool(nfail) == self.worst_failed and
                                                   (self.worst_where is None or float(rel_err[i]) > self._worst_rel)):
             self.worst_where = where(i)
