@@ -117,7 +117,8 @@ def test_defaults_pass_last_bit_noise_and_catch_real_change() -> None:
 
 def test_the_tally_keeps_the_least_lre_and_the_decades_of_every_value() -> None:
     # the tally takes the least LRE from the largest relative error; checked against the LRE of every value
-    # and a decade count by np.log10 per value (with zeros, NaN, infinities and an overflowing difference)
+    # and against decades counted with NumPy's log10 value by value (zeros, NaN, infinities and an
+    # overflowing difference included)
     from holotype.compare.tally import Tally
 
     rng = np.random.default_rng(5)

@@ -83,8 +83,16 @@ def _hash_in_processes(items: list[tuple[ProjectFile, Identity]], workers: int, 
     package_home = str(Path(holotype.__file__).resolve().parents[1])
     env = {**os.environ, "PYTHONPATH": os.pathsep.join([package_home, *filter(None, [os.environ.get("PYTHONPATH")])])}
     shares = [items[k::workers] for k in range(workers)]
-    procs = [subprocess.Popen([sys.executable, "-m", "holotype.capture.hashing"], stdin=subprocess.PIPE,
-                              stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env) for _ in shares]
+    procs: list[subprocess.Popen[bytes]] = []
+    try:
+        for _ in shares:
+            procs.append(subprocess.Popen([sys.executable, "-m", "holotype.capture.hashing"], stdin=subprocess.PIPE,
+                                          stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env))
+    except OSError:
+        for proc in procs:  # the one that did start must not wait for requests that never come
+            proc.kill()
+            proc.wait()
+        raise
     answers: list[list[Outcome]] = [[] for _ in shares]
     done = [0]
 

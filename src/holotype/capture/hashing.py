@@ -20,7 +20,7 @@ from typing import BinaryIO, Protocol
 
 CHUNK = 1 << 20  # hashlib releases the GIL for updates this large, so threads really run in parallel
 
-Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): see digest_cache.py
+Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): digest_cache.py's key
 
 
 class ByteCounter(Protocol):

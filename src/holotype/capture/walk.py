@@ -22,8 +22,6 @@ GLOB_CHARS = frozenset("*?[")
 CODE_SUFFIXES = (".py", ".ipynb")  # what the default code set takes
 
 
-
-
 class ProjectFile(NamedTuple):
     """One file the walk found (a tuple: a project of 100,000 files makes 100,000 of them, and a tuple is
     the cheapest immutable record Python builds)."""
@@ -149,7 +147,7 @@ class ProjectWalker:
             return
         excluded = self._excluder if self.excludes else None
         outputs = self.outputs
-        new = tuple.__new__  # a NamedTuple's own constructor is a Python function: five times slower
+        new = tuple.__new__  # a NamedTuple's own constructor is a Python-level function, and slower
         stack = [(folder, "" if start_rel == "." else start_rel + "/")]
         while stack:
             current, prefix = stack.pop()

@@ -245,6 +245,7 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
     config = load_config(root)
     lock = read_lock(root / LOCK_NAME)
     store = ProjectStore(root)
+    remove_stale_sessions(root)  # a session killed mid-run: its candidate's outputs go, the saved ones come back
     last = store.last_replay()
     if not last:
         raise HolotypeError("no replay to explain yet: run 'holotype replay' first", root)
@@ -274,17 +275,16 @@ def pinpoint_project(root: Path, *, max_runs: int = 32, keep: bool = False,
                                 "the cause; the differences above are the candidates (`holotype replay --twice` "
                                 "tells nondeterminism)"))
         return Judgement("pinpoint", apply_policy(findings, config.policy), warnings=config.warnings)
-    remove_stale_sessions(root)
     options = installer or InstallerOptions()
+    saved = _snapshot(root, [out for name in names for out in lock.analyses[name].outputs])
     overlays = Overlays(capture.python, options, {n: requirement_line(p, root) for n, p in lock.packages.items()
                                                   if p.origin.kind in ("vcs", "archive")})
     candidates = Candidates(root, config, lock, plan, overlays, capture.environment.packages, varied, options, say,
                             max_runs, progress)
-    saved = _snapshot(root, [out for name in names for out in lock.analyses[name].outputs])
-    overlays.save_outputs(root, saved)
     results: dict[str, SearchResult[Difference]] = {}
     nondeterministic = ""
     try:
+        overlays.save_outputs(root, saved)
         with store.one_writer():
             store.prepare()
             for out in failing:

@@ -61,7 +61,7 @@ class Verdict:
     passed: np.ndarray  # bool
     abs_err: np.ndarray  # float; inf where special values disagree
     rel_err: np.ndarray  # float; relative to expected (absolute where expected is 0)
-    all_finite: bool = False  # no NaN or infinity on either side (then no error is infinite either but by overflow)
+    all_finite: bool = False  # no NaN or infinity on either side (an error is then infinite only by overflow)
 
 
 def judge(expected: np.ndarray, actual: np.ndarray, tol: Tolerance) -> Verdict:

@@ -69,8 +69,7 @@ class Tally:
         elif nfail:
             self.min_lre = 0.0
         # decade histogram of relative errors
-        moved = rel_err != 0
-        nonzero = rel_err[moved]
+        nonzero = rel_err[rel_err != 0]
         exact = n - int(nonzero.size)
         if exact:
             self.decades["exact"] = self.decades.get("exact", 0) + exact
