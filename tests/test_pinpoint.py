@@ -337,3 +337,17 @@ def test_a_package_recorded_from_git_is_put_back_from_its_commit(monkeypatch: py
         overlays.close(False)
     assert asked[0][-1] == "lake-tool-git @ git+https://example.org/lake-tool.git@0123456789abcdef0123456789abcdef01234567"
     assert asked[1][-1] == "lake-tool-4==1.0"
+
+
+def test_only_a_candidate_takes_packages_away(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import sys
+
+    from holotype.config import load_config
+    from holotype.run.plan import make_plan
+
+    write(tmp_path / "holotype.toml", '[analyses.a]\ncommand = "python a.py"\noutputs = ["out.json"]\n')
+    monkeypatch.setenv("HOLOTYPE_HIDE_MODULES", "json")  # left over in the user's shell, say
+    monkeypatch.setenv("HOLOTYPE_HIDE_DISTS", "numpy")
+    config = load_config(tmp_path)
+    [step] = make_plan(config, sys.executable, config.select(["a"]), 1).steps
+    assert "HOLOTYPE_HIDE_MODULES" not in step.env and "HOLOTYPE_HIDE_DISTS" not in step.env

@@ -29,6 +29,8 @@ def analysis_environment(config: Config, python: str, analysis: Analysis, projec
     writers, LaTeX, many documentation tools) stamp the same date at every run; one set in holotype's own
     environment wins. HOLOTYPE_SVG_SALT fixes matplotlib's SVG id salt (the start-up hook applies it)."""
     env = dict(os.environ)
+    for name in ("HOLOTYPE_HIDE_MODULES", "HOLOTYPE_HIDE_DISTS"):
+        env.pop(name, None)  # only a pinpoint candidate takes packages away (run/overlays.py sets them)
     if epoch is not None and "SOURCE_DATE_EPOCH" not in env:
         env["SOURCE_DATE_EPOCH"] = str(epoch)
     env["HOLOTYPE_SVG_SALT"] = f"holotype-{project_seed}-{analysis.name}"
