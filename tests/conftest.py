@@ -6,10 +6,12 @@ import base64
 import hashlib
 import json
 import os
+import shutil
 import subprocess
 import sys
 import textwrap
 import zipfile
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -76,6 +78,27 @@ def build_wheel(folder: Path, name: str, version: str, requires: tuple[str, ...]
     top-level `top_level`: a namespace package's part, say)."""
     sources = modules or {f"{name.replace('-', '_')}/__init__.py": module_text or f"VERSION = {version!r}\n"}
     return write_wheel(folder, name, version, sources, requires, top_level, generator="holotype-tests")
+
+
+def built_once(tmp_path_factory: pytest.TempPathFactory, name: str,
+               build: Callable[[Path], dict[str, Path]]) -> dict[str, Path]:
+    """What `build(folder)` made, built once for the whole run: the xdist workers share the folder (the
+    first one to get there builds it, under a file lock, and the others read what it wrote). Only for
+    things the tests that use them do not change for each other (each test its own project, say)."""
+    import fcntl
+
+    base = tmp_path_factory.getbasetemp()
+    shared = base.parent if os.environ.get("PYTEST_XDIST_WORKER") else base  # one folder per run
+    done = shared / f"{name}.json"
+    with open(shared / f"{name}.lock", "w") as lock:
+        fcntl.flock(lock, fcntl.LOCK_EX)
+        if not done.exists():
+            folder = shared / name
+            shutil.rmtree(folder, ignore_errors=True)
+            folder.mkdir()
+            made = build(folder)
+            done.write_text(json.dumps({k: str(v) for k, v in made.items()}))
+    return {k: Path(v) for k, v in json.loads(done.read_text()).items()}
 
 
 @dataclass

@@ -41,7 +41,7 @@ import json  # noqa: E402
 import os  # noqa: E402
 from pathlib import Path  # noqa: E402
 
-from conftest import build_wheel, make_venv, run_cli, write  # noqa: E402
+from conftest import build_wheel, built_once, make_venv, run_cli, write  # noqa: E402
 from holotype.run.overlays import overlay_root  # noqa: E402
 
 SIX = [f"lake-tool-{i}" for i in range(1, 7)]
@@ -55,9 +55,12 @@ VALUE = ("import json, os\n" + "".join(f"import lake_tool_{i}\n" for i in range(
 
 @pytest.fixture(scope="session")
 def lakes(tmp_path_factory: pytest.TempPathFactory) -> dict[str, object]:
+    return dict(built_once(tmp_path_factory, "pinpoint-lakes", _build_lakes))
+
+
+def _build_lakes(base: Path) -> dict[str, Path]:
     """A venv of invented packages at 1.0, three recorded projects, then every package upgraded to 2.0:
     only lake-tool-4 2.0 changes the number alone; the pair changes it only together."""
-    base = tmp_path_factory.mktemp("pinpoint")
     wheels = base / "wheels"
     for name in SIX:
         build_wheel(wheels, name, "1.0", module_text="FACTOR = 1.0\n")
@@ -179,9 +182,12 @@ def _project(root: Path, python: Path, script: str) -> Path:
 
 @pytest.fixture(scope="session")
 def since(tmp_path_factory: pytest.TempPathFactory) -> dict[str, Path]:
+    return built_once(tmp_path_factory, "pinpoint-since", _build_since)
+
+
+def _build_since(base: Path) -> dict[str, Path]:
     """Packages removed and added after the record (no upgrades): lake-tool-gone removed and lake-tool-new
     added in one environment; in another, lakens-extra added beside lakens-core, parts of one namespace."""
-    base = tmp_path_factory.mktemp("since")
     wheels = base / "wheels"
     build_wheel(wheels, "lake-tool-gone", "1.0", module_text="FACTOR = 1.0\n")
     build_wheel(wheels, "lake-tool-new", "1.0", module_text="FACTOR = 3.0\n")
