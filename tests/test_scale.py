@@ -107,6 +107,22 @@ def test_a_changed_byte_with_its_mtime_put_back_is_caught_in_a_folder_known_by_s
     assert code == 1 and [f["subject"] for f in found] == ["data/above/well00500.dat"]
 
 
+def test_a_link_pointed_elsewhere_is_caught_in_a_folder_known_by_stat(tmp_path: Path) -> None:
+    # a link's own lstat (a new inode when it is made again) and its text are part of the folder's stamp
+    root = tmp_path / "proj"
+    write(root / "holotype.toml", 'data = ["data"]\ncode = []\nseed = 1\n')
+    fill(root / "data" / "above", N)
+    (root / "data" / "above" / "latest.dat").symlink_to("well00001.dat")
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    settle()
+    assert findings(root)[0] == 0  # the folder is now known by stat
+    link = root / "data" / "above" / "latest.dat"
+    link.unlink()
+    link.symlink_to("well00002.dat")
+    code, found = findings(root)
+    assert code == 1 and [f["subject"] for f in found] == ["data/above/latest.dat"], found
+
+
 def test_an_unchanged_big_folder_is_judged_by_stat_alone(project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     settle()
     assert findings(project)[0] == 0

@@ -34,14 +34,28 @@ class DataResult(FingerprintResult):
     listings: dict[str, bytes] = field(default_factory=dict)
 
 
+def _link_identity(item: ProjectFile) -> tuple[tuple[int, int, int, int, int], str]:
+    """A link's own lstat and its text: pointing a link elsewhere makes it anew, and changes both."""
+    try:
+        st = os.lstat(item.path)
+        return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns), os.readlink(item.path)
+    except OSError:
+        return (-1, -1, -1, -1, -1), "\0"  # unreadable now: the stamp cannot match a remembered one
+
+
 def _stamp(files: list[ProjectFile]) -> str:
     """One digest of the files' paths and identities; "" when one changed too recently to trust its times."""
-    none = (-1, -1, -1, -1, -1)  # a link: its text is read, not stat-ed
-    numbers = array("q", chain.from_iterable([f.ident or none for f in files]))
+    names = [f.rel for f in files]
+    idents = [f.ident for f in files]
+    for i, f in enumerate(files):
+        if f.is_link or f.ident is None:
+            idents[i], text = _link_identity(f)
+            names[i] = f"{f.rel}\0{text}"
+    numbers = array("q", chain.from_iterable(idents))  # type: ignore[arg-type]
     newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
     if time.time_ns() - newest < RACY_SECONDS * 1e9:
         return ""
-    h = hashlib.sha256("\0".join(f.rel for f in files).encode("utf-8", "surrogateescape"))
+    h = hashlib.sha256("\0".join(names).encode("utf-8", "surrogateescape"))
     h.update(numbers.tobytes())
     return h.hexdigest()
 
