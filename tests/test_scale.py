@@ -134,6 +134,40 @@ def test_an_unchanged_big_folder_is_judged_by_stat_alone(project: Path, monkeypa
     assert data_lookups == [N - 1], asked  # the loose files are looked up; the folder's are not
 
 
+def test_big_folders_are_stamped_by_worker_processes_with_the_same_findings(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from holotype.capture import folder_stamps
+
+    root = tmp_path / "proj"
+    write(root / "holotype.toml", 'data = ["data"]\nseed = 1\n')
+    write(root / "analysis.py", "print('lake')\n")
+    for name in ("east", "west", "north"):
+        fill(root / "data" / name, N)
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    settle()
+    assert findings(root)[0] == 0  # the folders' stamps are remembered now
+    monkeypatch.setattr(folder_stamps, "WORKER_FILES", 0)
+    here: list[str] = []
+    real = folder_stamps.stamps_of
+    monkeypatch.setattr(folder_stamps, "stamps_of", lambda walker, folders: here.extend(folders) or real(walker, folders))
+    assert findings(root) == (0, [])
+    assert here == [], "the stamps were taken in this process, not by the workers"
+    (root / "data" / "east" / "well00010.dat").write_bytes(b"edited\n")
+    for item in (root / "data" / "north").iterdir():
+        item.unlink()
+    (root / "data" / "north").rmdir()
+    code, found = findings(root)
+    assert code == 1 and here == []
+    kinds = {(f["kind"], f["subject"]) for f in found}
+    assert ("data.changed", "data/east/well00010.dat") in kinds, kinds
+    assert not any(subject.startswith("data/west/") for _, subject in kinds)
+    assert any(subject.startswith("data/north") for _, subject in kinds)
+    # no worker: the same answers from this process
+    monkeypatch.setattr(folder_stamps, "WORKER_FILES", 10 ** 9)
+    assert findings(root) == (code, found)
+    assert here
+
+
 def listing_path(root: Path) -> Path:
     lock = read_lock(root / "holotype.lock")
     return BaselineStore(root).path_for(lock.data_folders["data/above"].listing)

@@ -1,24 +1,20 @@
 """Digest the data files, big folders as one entry each (manifests.py), and skip the unchanged ones by stat.
 
-A folder entry's *stamp* is one SHA-256 over the identities (device, inode, size, times) of its files, from
-the walk's own lstat. When the stamp equals the one remembered with the folder's listing digest the last
-time, no file in it changed by stat, so neither the digest cache is asked about its files nor any listing
-compared. The stamp is not trusted for a folder with a file changed in the last moments (the racy-timestamp
-rule of digest_cache.py).
+A folder entry's *stamp* (folder_stamps.py) is one SHA-256 over the identities of its files. When the stamp
+equals the one remembered with the folder's listing digest the last time, no file in it changed by stat, so
+neither the digest cache is asked about its files nor any listing compared. A folder taken as unchanged
+before the walk (`settled`: its stamp was taken by a worker) is not walked by this process at all.
 """
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
-import time
-from array import array
 from dataclasses import dataclass, field
-from itertools import chain
 
-from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
+from holotype.capture.digest_cache import DigestCache
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
+from holotype.capture.folder_stamps import stamp
 from holotype.capture.walk import ProjectFile
 from holotype.manifests import choose_folders, folder_of, folder_record
 from holotype.records import FileRecord, FolderRecord
@@ -34,38 +30,40 @@ class DataResult(FingerprintResult):
     listings: dict[str, bytes] = field(default_factory=dict)
 
 
-def _link_identity(item: ProjectFile) -> tuple[tuple[int, int, int, int, int], str]:
-    """A link's own lstat and its text: pointing a link elsewhere makes it anew, and changes both."""
-    try:
-        st = os.lstat(item.path)
-        return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns), os.readlink(item.path)
-    except OSError:
-        return (-1, -1, -1, -1, -1), "\0"  # unreadable now: the stamp cannot match a remembered one
+def _key(real_root: str, folder: str) -> str:
+    return f"folder:{real_root}\0{folder}"
 
 
-def _stamp(files: list[ProjectFile]) -> str:
-    """One digest of the files' paths and identities; "" when one changed too recently to trust its times."""
-    names = [f.rel for f in files]
-    idents = [f.ident for f in files]
-    for i, f in enumerate(files):
-        if f.is_link or f.ident is None:
-            idents[i], text = _link_identity(f)
-            names[i] = f"{f.rel}\0{text}"
-    numbers = array("q", chain.from_iterable(idents))  # type: ignore[arg-type]
-    newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
-    if time.time_ns() - newest < RACY_SECONDS * 1e9:
-        return ""
-    h = hashlib.sha256("\0".join(names).encode("utf-8", "surrogateescape"))
-    h.update(numbers.tobytes())
-    return h.hexdigest()
+def remembered_stamps(root: str, cache: DigestCache, recorded: dict[str, FolderRecord],
+                      folders: list[str] | None = None) -> dict[str, tuple[str, FolderRecord]]:
+    """For each recorded folder (or each of `folders`) whose stamp is remembered beside the recorded listing:
+    that stamp, and the folder's entry as it was then."""
+    real = os.path.realpath(root)
+    wanted = [f for f in (folders if folders is not None else recorded) if f in recorded]
+    out: dict[str, tuple[str, FolderRecord]] = {}
+    keys = [_key(real, f) for f in wanted]
+    docs = cache.facts(keys)
+    for folder, key in zip(wanted, keys):
+        doc = docs.get(key)
+        if doc is None:
+            continue
+        try:
+            got = json.loads(doc)
+            if got["stamp"] and got["listing"] == recorded[folder].listing:
+                out[folder] = (str(got["stamp"]), FolderRecord(folder, int(got["files"]), int(got["bytes"]),
+                                                              str(got["listing"])))
+        except (ValueError, KeyError, TypeError):
+            continue
+    return out
 
 
 def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestCache | None,
                      recorded: dict[str, FolderRecord] | None = None, progress: HashProgress | None = None,
-                     listings: bool = False) -> DataResult:
+                     listings: bool = False, settled: dict[str, FolderRecord] | None = None) -> DataResult:
     """Digest the data files. With `recorded` (check, replay), a folder whose stamp is remembered with the
     recorded listing is taken as unchanged without reading anything more; with `listings` (record), every
-    folder's listing bytes are built for the store."""
+    folder's listing bytes are built for the store. `settled` folders were found unchanged by stat before the
+    walk, which left their files out of `files`."""
     chosen = choose_folders(files)
     groups: dict[str, list[ProjectFile]] = {f: [] for f in chosen}
     loose: dict[str, ProjectFile] = {}
@@ -80,23 +78,17 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
         else:
             groups[folder].append(item)
     real = os.path.realpath(root)
-    keys = {folder: f"folder:{real}\0{folder}" for folder in chosen}
-    stamps = {folder: _stamp(items) for folder, items in groups.items()} if cache is not None else {}
-    known = cache.facts([keys[f] for f in chosen if stamps.get(f)]) if cache is not None else {}
+    keys = {folder: _key(real, folder) for folder in chosen}
+    stamps = {folder: stamp(items) for folder, items in groups.items()} if cache is not None else {}
+    known = remembered_stamps(root, cache, recorded or {}, [f for f in chosen if stamps.get(f)]) \
+        if cache is not None and not listings else {}
     out = DataResult()
     to_digest = dict(loose)
+    out.folders.update(settled or {})
     for folder, items in groups.items():
-        doc = known.get(keys[folder])
-        if doc is not None and not listings:
-            try:
-                got = json.loads(doc)
-                if got["stamp"] == stamps[folder] and (recorded or {}).get(folder, FolderRecord()).listing \
-                        == got["listing"]:
-                    out.folders[folder] = FolderRecord(folder, int(got["files"]), int(got["bytes"]),
-                                                       str(got["listing"]))
-                    continue
-            except (ValueError, KeyError, TypeError):
-                pass
+        if folder in known and known[folder][0] == stamps[folder]:
+            out.folders[folder] = known[folder][1]
+            continue
         to_digest.update((f.rel, f) for f in items)
     digests = fingerprint_files(dict(sorted(to_digest.items())), cache=cache, progress=progress)
     out.problems = digests.problems

@@ -180,7 +180,7 @@ def _importable(rel: str, imports: tuple[str, ...]) -> bool:
 
 
 def _source_tree(folder: Path, project: Path, excludes: tuple[str, ...], skip: set[str],
-                 imports: tuple[str, ...] = (), roots: list[Path] | None = None) -> tuple[
+                 imports: tuple[str, ...] = (), roots: list[Path] | None = None, below: tuple[str, ...] = ()) -> tuple[
                      dict[str, ProjectFile], str | None]:
     """Files of a local install's source folder, or a note saying why it is not digested.
 
@@ -211,7 +211,8 @@ def _source_tree(folder: Path, project: Path, excludes: tuple[str, ...], skip: s
         found = {rel: item for rel, item in found.items() if _importable(rel, imports)}
     kept: dict[str, ProjectFile] = {}
     for rel, item in found.items():
-        if inside and (prefix + rel in skip or (excludes and is_excluded(prefix + rel, excludes))):
+        if inside and (prefix + rel in skip or (below and (prefix + rel).startswith(below))
+                       or (excludes and is_excluded(prefix + rel, excludes))):
             continue  # the project's data, outputs and excludes are not the package's code
         kept[rel] = item
         if len(kept) > TREE_LIMIT:
@@ -267,8 +268,9 @@ def _listed_contents(site: Path, listing: list[Listed], cache: DigestCache | Non
 
 
 def digest_installed(env: Environment, project: Path, *, cache: DigestCache | None, excludes: tuple[str, ...] = (),
-                     skip: Iterable[str] = ()) -> dict[str, InstalledFiles]:
-    """Digest every package's installed files (and local source trees); keyed by package name.
+                     skip: Iterable[str] = (), skip_below: Iterable[str] = ()) -> dict[str, InstalledFiles]:
+    """Digest every package's installed files (and local source trees); keyed by package name. A local
+    source tree inside the project leaves out the project's files in `skip` and below the folders `skip_below`.
 
     With the cache, a package whose listed files all keep their identity since the last time is answered
     from it without looking further; `check --full` (no cache) reads every byte."""
@@ -302,12 +304,13 @@ def digest_installed(env: Environment, project: Path, *, cache: DigestCache | No
         if cache is not None and stamp:
             cache.remember(key, json.dumps({"stamp": stamp, "files": got.files, "edited": list(got.edited)}))
     skipped = set(skip)
+    below = tuple(f + "/" for f in skip_below)
     for name, rec in env.packages.items():
         url = env.sources.get(name)
         folder = local_folder(url) if url and rec.origin.kind in ("editable", "directory") else None
         if folder is None:
             continue
-        files, note = _source_tree(folder, project, excludes, skipped, rec.top_level, roots.get(name))
+        files, note = _source_tree(folder, project, excludes, skipped, rec.top_level, roots.get(name), below)
         entry = out.setdefault(name, InstalledFiles())
         entry.tree_note = note
         digests = fingerprint_files(files, cache=cache)

@@ -110,19 +110,22 @@ def inspection_key(python: str, env: Environment, threads: int | None) -> str:
     return "numerics:" + hashlib.sha256(doc.encode()).hexdigest()
 
 
-def finish_inspection(run: ProbeRun, python: str, env: Environment, threads: int | None,
+def finish_inspection(run: ProbeRun | None, python: str, env: Environment, threads: int | None,
                       cache: DigestCache | None) -> NumericStack | None:
-    """The numeric stack: from the cache when nothing that decides it changed, else from the running inspection."""
+    """The numeric stack: from the cache when nothing that decides it changed, else from the inspection
+    (`run`, started early; None: started now, only when the cache cannot answer)."""
     if not any(d in env.packages for d in NUMERIC_PACKAGES):
-        run.stop()
+        if run is not None:
+            run.stop()
         return None
     key = inspection_key(python, env, threads)
     remembered = cache.fact(key) if cache is not None else None
     if remembered is not None:
-        run.stop()
+        if run is not None:
+            run.stop()
         doc = json.loads(remembered)
     else:
-        doc = run.result()
+        doc = (run or start_inspection(python, threads)).result()
         if cache is not None:
             cache.remember(key, json.dumps(doc))
     try:

@@ -5,10 +5,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from holotype.capture.data_folders import DataResult, fingerprint_data
+from holotype.capture.data_folders import DataResult, fingerprint_data, remembered_stamps
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
+from holotype.capture.folder_stamps import StampWorkers
 from holotype.capture.imports import scan_imports
 from holotype.capture.installed import digest_installed, with_installed
 from holotype.capture.numerics import finish_inspection, start_inspection
@@ -32,7 +33,45 @@ class ProjectCapture:
     requested_from: str = "installer"  # where each package's "requested" came from (capture/usage.py)
 
 
-def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
+def _fixed_prefix(pattern: str) -> str:
+    """The part of a pattern before its first glob character, up to a whole folder ('' for '**/*.py')."""
+    parts = []
+    for part in (pattern.rstrip("/") or ".").split("/"):
+        if GLOB_CHARS.intersection(part):
+            break
+        parts.append(part)
+    return "/".join(parts)
+
+
+def _overlaps(prefix: str, folder: str) -> bool:
+    return prefix in ("", ".", folder) or folder.startswith(prefix + "/") or prefix.startswith(folder + "/")
+
+
+def folders_to_set_aside(config: Config, recorded: dict[str, FolderRecord]) -> list[str]:
+    """The recorded data folders whose stamps may be taken apart from the walk: each holds no other recorded
+    folder, lies wholly inside a plain data pattern (so every file below it is data), and no code pattern
+    reaches into it (so none of its files can be code)."""
+    data = [p.rstrip("/") or "." for p in config.data]
+    if not recorded or any(GLOB_CHARS.intersection(p) for p in data):
+        return []
+    code = [_fixed_prefix(p) for p in config.code or ()]
+    out = []
+    for folder in recorded:
+        if any(other.startswith(folder + "/") for other in recorded):
+            continue
+        if any(p in (".", folder) or folder.startswith(p + "/") for p in data) and \
+                not any(_overlaps(prefix, folder) for prefix in code):
+            out.append(folder)
+    return out
+
+
+def project_walker(config: Config, set_aside: frozenset[str] = frozenset()) -> ProjectWalker:
+    outputs = frozenset(out for a in config.analyses for out in a.outputs)
+    return ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, outputs, set_aside)
+
+
+def tracked_files(config: Config, walker: ProjectWalker | None = None) -> tuple[
+        dict[str, ProjectFile], dict[str, ProjectFile], list[str]]:
     """Data files, code files, and data patterns that matched nothing.
 
     Outputs are never inputs: declared outputs are left out of both sets (an output written inside a data
@@ -49,7 +88,7 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
                     raise ConfigError(f"'{key}' entry '{pattern}' takes in '{out}', an output of analysis '{name}'; "
                                       "an output cannot also be an input the record fingerprints (narrow the "
                                       "pattern, or move the output)", config.source)
-    walker = ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, frozenset(outputs))
+    walker = walker or project_walker(config)
     if config.code is None:
         walker.everything()  # one walk for data and the default code set
     data, unmatched = walker.collect(config.data)
@@ -65,6 +104,48 @@ def tracked_files(config: Config) -> tuple[dict[str, ProjectFile], dict[str, Pro
     return data, code, unmatched
 
 
+class SetAside:
+    """The recorded folders whose stamps worker processes take while this process walks the rest of the
+    project (and reads the environment); `finish` adds the files of those that changed to the data files."""
+
+    def __init__(self, config: Config, remembered: dict[str, tuple[str, FolderRecord]]) -> None:
+        self.config = config
+        self.remembered = remembered
+        self.walker = project_walker(config, frozenset(remembered))
+        self.workers = StampWorkers(project_walker(config), {f: entry.files for f, (_, entry) in remembered.items()})
+
+    @classmethod
+    def start(cls, config: Config, cache: DigestCache | None, recorded: dict[str, FolderRecord]) -> SetAside | None:
+        remembered = remembered_stamps(str(config.root), cache, recorded, folders_to_set_aside(config, recorded)) \
+            if cache is not None else {}
+        return cls(config, remembered) if remembered else None
+
+    def stop(self) -> None:
+        self.workers.stop()
+
+    def finish(self, data: dict[str, ProjectFile], unmatched: list[str]) -> tuple[
+            dict[str, ProjectFile], list[str], dict[str, FolderRecord]]:
+        """The data files with those of the changed folders added, the unmatched patterns, and the entries
+        of the folders found unchanged (left out of the data files)."""
+        taken = self.workers.result()
+        settled: dict[str, FolderRecord] = {}
+        changed: dict[str, ProjectFile] = {}
+        for folder, (then, entry) in self.remembered.items():
+            if taken.get(folder, ("", 0))[0] == then:
+                settled[folder] = entry
+            else:
+                self.walker.walk_below(folder, changed)
+        if changed:
+            data = dict(sorted({**data, **changed}.items()))
+        for pattern in self.config.data:  # its files were all set aside, and are now gone: it matched nothing
+            plain = pattern.rstrip("/") or "."
+            if pattern not in unmatched and self.walker.covers_set_aside(pattern) and not any(
+                    _overlaps(plain, f) for f in settled) and not any(
+                    plain == "." or rel.startswith(plain + "/") or rel == plain for rel in data):
+                unmatched.append(pattern)
+        return data, unmatched, settled
+
+
 def capture_project(config: Config, *, python_override: str | None = None, full: bool = False,
                     progress: HashProgress | None = None, numerics: bool = True,
                     recorded_folders: dict[str, FolderRecord] | None = None,
@@ -75,23 +156,39 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
     `listings` builds every data folder's listing object for the store (record)."""
     python, how = resolve_python(config.python, config.root, python_override)
     probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
-    inspection = start_inspection(python, config.threads) if numerics else None
+    # a first record starts the numeric inspection now, to run while files are hashed; a check usually finds
+    # its answer in the cache, and starts it only when it does not (importing NumPy and friends costs CPU)
+    inspection = start_inspection(python, config.threads) if numerics and listings else None
     stack = None
     try:
-        data_files, code_files, unmatched = tracked_files(config)
-        scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items() if rel.endswith((".py", ".ipynb"))])
         cache = None if full else DigestCache()
+        aside = SetAside.start(config, cache, recorded_folders or {}) if not listings else None
         try:
-            data = fingerprint_data(data_files, str(config.root), cache=cache, recorded=recorded_folders,
-                                    progress=progress, listings=listings)
-            code = fingerprint_files(code_files, cache=cache)
-            env = environment_from_probe(probe.result(), config.root, python)
+            data_files, code_files, unmatched = tracked_files(config, aside.walker if aside else None)
+            scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items()
+                                 if rel.endswith((".py", ".ipynb"))])
             outputs = {out for a in config.analyses for out in a.outputs}
-            env = with_installed(env, digest_installed(env, Path(config.root), cache=cache, excludes=config.exclude,
-                                                       skip=set(data_files) | outputs))
-            if inspection is not None:
+
+            def environment() -> Environment:
+                got = environment_from_probe(probe.result(), config.root, python)
+                return with_installed(got, digest_installed(
+                    got, Path(config.root), cache=cache, excludes=config.exclude, skip=set(data_files) | outputs,
+                    skip_below=set(aside.remembered) if aside else ()))
+
+            env = None
+            settled: dict[str, FolderRecord] = {}
+            if aside is not None:
+                env = environment()  # while the workers take the stamps
+                data_files, unmatched, settled = aside.finish(data_files, unmatched)
+            data = fingerprint_data(data_files, str(config.root), cache=cache, recorded=recorded_folders,
+                                    progress=progress, listings=listings, settled=settled)
+            code = fingerprint_files(code_files, cache=cache)
+            env = env or environment()  # after the hashing when nothing was set aside: the probe runs meanwhile
+            if numerics:
                 stack = finish_inspection(inspection, python, env, config.threads, cache)
         finally:
+            if aside is not None:
+                aside.stop()
             if cache is not None:
                 cache.close()
     finally:

@@ -115,8 +115,12 @@ class ProjectWalker:
     """Walks the project tree with os.scandir; one pass, no per-file subprocess, links not followed."""
 
     def __init__(self, root: Path, excludes: tuple[str, ...] = (), allow_outside: bool = False,
-                 config_path: Path | None = None, outputs: frozenset[str] = frozenset()) -> None:
+                 config_path: Path | None = None, outputs: frozenset[str] = frozenset(),
+                 set_aside: frozenset[str] = frozenset()) -> None:
         self.root = Path(root)
+        # folders (project-relative) this walk does not enter: their stamps are being taken elsewhere
+        # (folder_stamps.py), and the caller walks the ones that changed with walk_below
+        self.set_aside = set_aside
         self.outputs = outputs  # declared outputs: never inputs, so never looked at (a link among them included)
         self.root_real = os.path.realpath(self.root)
         self.excludes = excludes
@@ -144,6 +148,9 @@ class ProjectWalker:
         # relative names are built by joining strings: os.path.relpath per file is the slow part otherwise
         start_rel = self._rel(folder)
         if self.excludes and start_rel != "." and is_excluded(start_rel, self.excludes):
+            return
+        set_aside = self.set_aside
+        if set_aside and (start_rel in set_aside or any(start_rel.startswith(f + "/") for f in set_aside)):
             return
         excluded = self._excluder if self.excludes else None
         outputs = self.outputs
@@ -176,7 +183,8 @@ class ProjectWalker:
                         self._check_link(full, rel)
                         out[rel] = ProjectFile(rel, full, True, 0)
                     elif entry.is_dir(follow_symlinks=False):
-                        if name in SKIP_FOLDERS or os.path.exists(full + "/pyvenv.cfg"):
+                        if name in SKIP_FOLDERS or os.path.exists(full + "/pyvenv.cfg") or \
+                                (set_aside and rel in set_aside):
                             continue
                         stack.append((full, rel + "/"))
                 except OSError:
@@ -197,6 +205,21 @@ class ProjectWalker:
         elif stat.S_ISREG(st.st_mode):
             out[rel] = ProjectFile(rel, full, False, st.st_size,
                                    (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+
+    def walk_below(self, rel: str, out: dict[str, ProjectFile]) -> None:
+        """Every file at or below project-relative folder `rel` into `out`, as the whole-project walk would
+        find them (a folder set aside included)."""
+        aside, self.set_aside = self.set_aside, frozenset()
+        try:
+            self._walk_folder(os.path.join(self.root, rel), out)
+        finally:
+            self.set_aside = aside
+
+    def covers_set_aside(self, pattern: str) -> bool:
+        """Whether plain `pattern` is at or below a folder set aside (its files may all be there)."""
+        plain = pattern.rstrip("/") or "."
+        return any(plain in (".", f) or f.startswith(plain + "/") or plain.startswith(f + "/")
+                   for f in self.set_aside)
 
     def everything(self) -> dict[str, ProjectFile]:
         """Every file of the project the walk sees (skipped folders and excludes left out), walked once."""
@@ -266,7 +289,7 @@ class ProjectWalker:
                     # a glob naming a folder takes everything below that folder
                     if regex.match(rel) or any(regex.match("/".join(parts_rel[:d])) for d in range(1, len(parts_rel))):
                         out[rel] = item
-            if len(out) == before and pattern not in unmatched:
+            if len(out) == before and pattern not in unmatched and not self.covers_set_aside(pattern):
                 unmatched.append(pattern)
         if len(patterns) == 1 and sorted_already:
             return out, unmatched  # taken in order from the sorted whole-project walk

@@ -1,0 +1,148 @@
+"""A big data folder's *stamp*, and the workers that take the stamps of a check's folders on every core.
+
+A stamp is one SHA-256 over the paths and identities (device, inode, size, times) of a folder's files, from
+the walk's own lstat; a link adds its own lstat and its text. data_folders.py remembers the stamp beside the
+folder's listing digest; when the stamp taken now equals it, no file in the folder changed by stat, so the
+folder is judged unchanged without its files being looked up or its listing compared. A folder with a file
+changed in the last moments gets no stamp (the racy-timestamp rule of digest_cache.py).
+
+Taking a stamp costs a stat per file, and one process stats only so fast, so a cached `check` of a big tree
+takes them in worker processes of its own (`python -m holotype.capture.folder_stamps`), one per core, while
+it walks the rest of the project itself. A worker reads one JSON request on standard input (the project
+root, its excludes and outputs, and the folders) and answers one JSON list of [folder, stamp, files].
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import os
+import subprocess
+import sys
+import time
+from array import array
+from itertools import chain
+from pathlib import Path
+
+from holotype.capture.digest_cache import RACY_SECONDS
+from holotype.capture.hashing import Identity
+from holotype.capture.walk import ProjectFile, ProjectWalker
+from holotype.errors import HolotypeError
+
+NO_IDENTITY: Identity = (-1, -1, -1, -1, -1)
+WORKER_FILES = 20_000  # below this many files the stamps are taken in this process: a worker costs its start-up
+
+
+def _link_identity(item: ProjectFile) -> tuple[Identity, str]:
+    """A link's own lstat and its text: pointing a link elsewhere makes it anew, and changes both."""
+    try:
+        st = os.lstat(item.path)
+        return (st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns), os.readlink(item.path)
+    except OSError:
+        return NO_IDENTITY, "\0"  # unreadable now: such a file makes the folder's digest report a problem
+
+
+def stamp(files: list[ProjectFile]) -> str:
+    """One digest of the files' paths and identities (in path order); "" when one changed too recently."""
+    names = [f.rel for f in files]
+    idents: list[Identity] = [f.ident or NO_IDENTITY for f in files]
+    for i, f in enumerate(files):
+        if f.is_link or f.ident is None:
+            idents[i], text = _link_identity(f)
+            names[i] = f"{f.rel}\0{text}"
+    numbers = array("q", chain.from_iterable(idents))
+    newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
+    if time.time_ns() - newest < RACY_SECONDS * 1e9:
+        return ""
+    h = hashlib.sha256("\0".join(names).encode("utf-8", "surrogateescape"))
+    h.update(numbers.tobytes())
+    return h.hexdigest()
+
+
+def stamps_of(walker: ProjectWalker, folders: list[str]) -> list[tuple[str, str, int]]:
+    """(folder, stamp, files) for each project-relative folder, walked as the project walk walks it; a folder
+    the walk would refuse (a name that is not UTF-8, a link leading outside) gets no stamp, so the caller
+    walks it itself and says why."""
+    out: list[tuple[str, str, int]] = []
+    for rel in folders:
+        found: dict[str, ProjectFile] = {}
+        try:
+            walker.walk_below(rel, found)
+        except HolotypeError:
+            out.append((rel, "", 0))
+            continue
+        out.append((rel, stamp([found[k] for k in sorted(found)]) if found else "", len(found)))
+    return out
+
+
+class StampWorkers:
+    """The stamps of `folders` (each with its recorded file count), taken in one worker process per core
+    while the caller does other work; `result()` waits for them. When the folders are few, or a worker
+    cannot start or answer, the stamps are taken in this process instead (same function, same answer)."""
+
+    def __init__(self, walker: ProjectWalker, folders: dict[str, int]) -> None:
+        self.walker = walker
+        self.folders = sorted(folders)
+        self.procs: list[subprocess.Popen[bytes]] = []
+        workers = min(os.cpu_count() or 1, 4, len(folders))
+        if workers < 2 or sum(folders.values()) < WORKER_FILES:
+            return
+        shares: list[list[str]] = [[] for _ in range(workers)]
+        loads = [0] * workers
+        for rel in sorted(folders, key=lambda f: -folders[f]):  # biggest first, each to the least loaded
+            k = loads.index(min(loads))
+            shares[k].append(rel)
+            loads[k] += folders[rel]
+        import holotype
+
+        package_home = str(Path(holotype.__file__).resolve().parents[1])
+        env = {**os.environ,
+               "PYTHONPATH": os.pathsep.join([package_home, *filter(None, [os.environ.get("PYTHONPATH")])])}
+        request = {"root": str(walker.root), "excludes": list(walker.excludes), "allow_outside": walker.allow_outside,
+                   "outputs": sorted(walker.outputs)}
+        try:
+            for share in shares:
+                proc = subprocess.Popen([sys.executable, "-m", "holotype.capture.folder_stamps"],
+                                        stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL,
+                                        env=env)
+                self.procs.append(proc)
+                assert proc.stdin is not None
+                proc.stdin.write(json.dumps({**request, "folders": share}).encode())
+                proc.stdin.close()
+        except OSError:
+            self.stop()
+
+    def stop(self) -> None:
+        for proc in self.procs:
+            if proc.poll() is None:
+                proc.kill()
+            proc.wait()
+        self.procs = []
+
+    def result(self) -> dict[str, tuple[str, int]]:
+        got: dict[str, tuple[str, int]] = {}
+        try:
+            for proc in self.procs:
+                assert proc.stdout is not None
+                out = proc.stdout.read()
+                if proc.wait() == 0:
+                    got.update((rel, (s, int(n))) for rel, s, n in json.loads(out))
+        except (OSError, ValueError, TypeError):
+            got = {}
+        finally:
+            self.stop()
+        missing = [rel for rel in self.folders if rel not in got]
+        got.update((rel, (s, n)) for rel, s, n in stamps_of(self.walker, missing))
+        return got
+
+
+def main() -> None:
+    request = json.loads(sys.stdin.buffer.read())
+    walker = ProjectWalker(Path(request["root"]), tuple(request["excludes"]), bool(request["allow_outside"]),
+                           outputs=frozenset(request["outputs"]))
+    answer = stamps_of(walker, [str(f) for f in request["folders"]])
+    sys.stdout.write(json.dumps(answer))
+
+
+if __name__ == "__main__":
+    main()
