@@ -251,3 +251,64 @@ def test_many_small_files_hashed_in_worker_processes_match_hashlib(tmp_path: Pat
     for rel in ("d/big.bin", "d/plate/well00000.dat", f"d/plate/well{count - 1:05d}.dat"):
         # FIPS 180-4 SHA-256 as Python's hashlib computes it
         assert result.records[rel].sha256 == hashlib.sha256((tmp_path / rel).read_bytes()).hexdigest()
+
+
+def _walk_stamp(walker: object, rel: str) -> tuple[str, int]:
+    from holotype.capture.folder_stamps import stamp
+
+    found: dict = {}
+    walker.walk_below(rel, found)  # type: ignore[attr-defined]
+    return (stamp([found[k] for k in sorted(found)]) if found else ""), len(found)
+
+
+def test_the_plain_stamp_equals_the_stamp_of_the_walk(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the fast stamp walk must see exactly the files the project walk sees: nested folders, excludes (by
+    # name and by path), declared outputs, skipped folders and a virtual environment left out
+    from holotype.capture import folder_stamps
+    from holotype.capture.folder_stamps import plain_stamp
+
+    monkeypatch.setattr(folder_stamps, "RACY_SECONDS", -10)  # files made a moment ago get a stamp too
+    from holotype.capture.walk import ProjectWalker
+
+    root = tmp_path / "proj"
+    data = root / "data"
+    fill(data / "a", 30)
+    fill(data / "a" / "deeper" / "still", 5)
+    fill(data / "b", 3)
+    write(data / "a" / "scratch.tmp", "x")
+    write(data / "a" / "notes" / "draft.txt", "x")
+    write(data / "a" / "out.csv", "x")
+    write(data / "a" / "__pycache__" / "m.pyc", "x")
+    write(data / "a" / "venv" / "pyvenv.cfg", "home = /usr\n")
+    write(data / "a" / "venv" / "lib.py", "x")
+    (data / "empty").mkdir()
+    cases = [ProjectWalker(root), ProjectWalker(root, ("*.tmp", "data/a/notes")),
+             ProjectWalker(root, (), outputs=frozenset({"data/a/out.csv"})), ProjectWalker(root, ("data/b",))]
+    for walker in cases:
+        for rel in ("data", "data/a", "data/b", "data/empty"):
+            got = plain_stamp(walker, rel)
+            assert got == _walk_stamp(walker, rel), (walker.excludes, walker.outputs, rel)
+            assert rel == "data/empty" or got[0] or walker.excludes == ("data/b",)
+    # a plain name, a file or an excluded folder changes the stamp as it changes the walk's
+    walker = cases[1]
+    before = plain_stamp(walker, "data/a")
+    write(data / "a" / "scratch2.tmp", "x")  # excluded: no change
+    write(data / "a" / "new.dat", "x")
+    after = plain_stamp(walker, "data/a")
+    assert after is not None and before is not None and after[1] == before[1] + 1 and after[0] != before[0]
+    assert after == _walk_stamp(walker, "data/a")
+
+
+def test_the_plain_stamp_leaves_links_and_unusual_names_to_the_walk(tmp_path: Path) -> None:
+    from holotype.capture.folder_stamps import plain_stamp
+    from holotype.capture.walk import ProjectWalker
+
+    root = tmp_path / "proj"
+    fill(root / "data" / "a", 3)
+    walker = ProjectWalker(root)
+    assert plain_stamp(walker, "data/a") is not None
+    (root / "data" / "a" / "latest.dat").symlink_to("well00001.dat")
+    assert plain_stamp(walker, "data/a") is None
+    (root / "data" / "a" / "latest.dat").unlink()
+    write(root / "data" / "a" / "Müller.dat", "x")
+    assert plain_stamp(walker, "data/a") is None

@@ -3,7 +3,7 @@
 Built on click. The shared options live on the group and on every command (so `-C DIR` works
 before or after the command name) and meet in one `Session` on `ctx.obj`. Findings commands are
 declared with `@findings_command`, which builds the session, calls the command body and renders
-the report it returns. Errors have one path: `HolotypeError` is a `click.ClickException` (exit 2,
+the report it returns. Errors have one path: a `HolotypeError` shows itself (exit 2,
 one line), and `HolotypeGroup.main` turns usage errors and anything unexpected into one line too.
 Heavy modules (NumPy, rich, the commands) are imported inside the bodies, so `--help` stays fast.
 """
@@ -26,6 +26,7 @@ if TYPE_CHECKING:
     from rich.console import Console
 
     from holotype.findings import Judgement
+    from holotype.render.progress import AnalysisPanel, HashBar
 
 CONTEXT = {"help_option_names": ["--help", "-h"], "max_content_width": 100}
 UNSET = object()
@@ -125,10 +126,15 @@ class Session:
         write_output(self.output, text)
         self.say(f"wrote {self.output}")
 
+    def show(self, report: Judgement) -> None:
+        """The findings table on the terminal (rich is loaded only here, so --quiet never loads it)."""
+        from holotype.render.terminal import print_report
+
+        print_report(self.console, report)
+
     def emit(self, report: Judgement) -> int:
         """Render the report: the human table on the terminal (--output FILE also writes FILE); the exit code."""
         from holotype.render import format_for, render_findings
-        from holotype.render.terminal import print_report
 
         for warning in report.warnings:
             self.say(f"warning: {warning}")
@@ -138,10 +144,10 @@ class Session:
 
             write_output(self.output, render_findings(report, fmt))
             if not self.quiet:
-                print_report(self.console, report)
+                self.show(report)
         elif self.fmt == "text":
             if not self.quiet:
-                print_report(self.console, report)
+                self.show(report)
         else:
             out = _stdout()
             out.write(render_findings(report, self.fmt))
@@ -218,6 +224,7 @@ class HolotypeGroup(click.Group):
 
     def main(self, args: Any = None, prog_name: str | None = None, complete_var: str | None = None,
              standalone_mode: bool = True, **extra: Any) -> Any:
+        from holotype.errors import HolotypeError
         from holotype.phrasing import one_line
 
         def fail(message: str) -> None:
@@ -235,9 +242,11 @@ class HolotypeGroup(click.Group):
             where = f" (see 'holotype {exc.ctx.command.name} --help')" if exc.ctx and exc.ctx.parent else \
                 " (see 'holotype --help')"
             fail(exc.format_message() + where)
-        except click.ClickException as exc:  # HolotypeError and its family: their own one-line show()
+        except HolotypeError as exc:  # the one error root: its own one-line show()
             exc.show()
             sys.exit(exc.exit_code)
+        except click.ClickException as exc:  # click's own (a file option it cannot open, say)
+            fail(exc.format_message())
         except (click.Abort, KeyboardInterrupt):
             fail("interrupted")
         except (SystemExit, click.exceptions.Exit):
@@ -283,18 +292,33 @@ def _parallel(f: Callable[..., Any]) -> Callable[..., Any]:
                         help="Analyses at once (default: usable CPUs / threads; 1 runs them one after another).")(f)
 
 
+def _hash_bar(session: Session) -> HashBar | None:
+    """The hashing bar at a terminal; None (and rich not loaded) with --quiet, JSON or no terminal."""
+    if not session.interactive:
+        return None
+    from holotype.render.progress import HashBar
+
+    return HashBar(session.err)
+
+
+def _analysis_panel(session: Session) -> AnalysisPanel | None:
+    if not session.interactive:
+        return None
+    from holotype.render.progress import AnalysisPanel
+
+    return AnalysisPanel(session.err)
+
+
 @findings_command("record", python=True)
 @click.option("--no-run", is_flag=True, help="Record the environment, data and code only.")
 @_parallel
 def record(session: Session, no_run: bool, python: str | None, jobs: int | None, cluster: str | None) -> Judgement:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
     from holotype.commands.record import record_project
-    from holotype.render.progress import AnalysisPanel, HashBar
 
-    panel = AnalysisPanel(session.err) if session.interactive else None
+    panel = _analysis_panel(session)
     try:
-        return record_project(session.project, run=not no_run, python=python,
-                              hash_progress=HashBar(session.err) if session.interactive else None,
+        return record_project(session.project, run=not no_run, python=python, hash_progress=_hash_bar(session),
                               run_progress=panel, jobs=jobs, cluster=cluster)
     finally:
         if panel is not None:
@@ -306,11 +330,13 @@ def record(session: Session, no_run: bool, python: str | None, jobs: int | None,
 @click.option("--strict", is_flag=True, help="Treat warnings as failures.")
 def check(session: Session, full: bool, strict: bool, python: str | None) -> Judgement:
     """Compare the project as it is now with holotype.lock, running nothing."""
-    from holotype.commands.check import check_project
-    from holotype.render.progress import HashBar
+    if not full:  # the stamp workers the last check asked for start while the rest of holotype loads
+        from holotype.capture.head_start import begin
 
-    return check_project(session.project, strict=strict, full=full, python=python,
-                         progress=HashBar(session.err) if session.interactive else None)
+        begin(session.project)
+    from holotype.commands.check import check_project
+
+    return check_project(session.project, strict=strict, full=full, python=python, progress=_hash_bar(session))
 
 
 @findings_command("replay", python=True)
@@ -322,9 +348,8 @@ def replay(session: Session, names: tuple[str, ...], twice: bool, dry_run: bool,
            jobs: int | None, cluster: str | None) -> Judgement:
     """Run the analyses (all, or NAMES) with their seeds and compare every output with its baseline."""
     from holotype.commands.replay import replay_project
-    from holotype.render.progress import AnalysisPanel
 
-    panel = AnalysisPanel(session.err) if session.interactive and not dry_run else None
+    panel = _analysis_panel(session) if not dry_run else None
     try:
         return replay_project(session.project, list(names), twice=twice, python=python, dry_run=dry_run,
                               progress=panel, jobs=jobs, cluster=cluster,

@@ -1,7 +1,8 @@
 """The one error root: anything a user can cause that leaves holotype unable to judge (exit code 2).
 
-`HolotypeError` is a `click.ClickException`, so the command line shows it the click way, but with
-its own `show()`: one line on stderr, control characters escaped, never a traceback.
+`HolotypeError` carries its exit code and its own `show()`: one line on stderr, control characters
+escaped, never a traceback (the command line calls it). It does not import the command framework, so
+the worker processes that import the walk (folder_stamps.py) start quickly.
 """
 
 from __future__ import annotations
@@ -10,13 +11,11 @@ import sys
 from pathlib import Path
 from typing import IO, Any
 
-import click
-
 from holotype.phrasing import one_line
 from holotype.redaction import redact
 
 
-class HolotypeError(click.ClickException):
+class HolotypeError(Exception):
     """A problem with the user's input that stops a command; printed as one line, exit code 2."""
 
     exit_code = 2
@@ -24,7 +23,8 @@ class HolotypeError(click.ClickException):
     def __init__(self, message: str, path: Path | str | None = None) -> None:
         self.path = one_line(str(path)) if path is not None else None
         self.detail = one_line(redact(message))
-        super().__init__(f"{self.path}: {self.detail}" if self.path else self.detail)
+        self.message = f"{self.path}: {self.detail}" if self.path else self.detail
+        super().__init__(self.message)
 
     def __str__(self) -> str:
         return self.message

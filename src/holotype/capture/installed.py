@@ -26,6 +26,7 @@ import json
 import os
 import re
 import time
+from array import array
 from collections.abc import Iterable
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -42,6 +43,7 @@ from holotype.standards.requirements import local_folder
 RECORD_LIMIT = 64 << 20  # a RECORD larger than this is not an installer's listing
 TREE_LIMIT = 20_000  # files in one local source folder; a larger folder is not digested (and the lock says so)
 INSTALLER_MARKS = frozenset({"RECORD", "INSTALLER", "REQUESTED", "direct_url.json", "RECORD.jws", "RECORD.p7s"})
+MISSING = (-1, -1, -1, -1, -1, -1)  # the identity numbers of a listed file that is not there
 TREE_SKIP = ("*.pyc", "*.pyo", "*.egg-info", "build", "dist", ".eggs")
 
 
@@ -226,21 +228,24 @@ def _identities(site: Path, listing: list[Listed]) -> str:
     "" when a file changed a moment ago: its times may be shared with the next write, so nothing is trusted."""
     prefix = str(site) + os.sep
     lstat = os.lstat
-    parts: list[str] = []
-    newest = 0
+    numbers = array("q")
+    add = numbers.extend
+    names: list[str] = []
     for rel, _ in listing:
         try:
             st = lstat(prefix + rel)
         except OSError:
-            parts.append(rel + "\0-")
+            names.append(rel + "\0-")
+            add(MISSING)
             continue
-        changed = st.st_ctime_ns if st.st_ctime_ns > st.st_mtime_ns else st.st_mtime_ns
-        if changed > newest:
-            newest = changed
-        parts.append(f"{rel}\0{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}:{st.st_mode}")
+        names.append(rel)
+        add((st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns, st.st_mode))
+    newest = max(max(numbers[3::6], default=0), max(numbers[4::6], default=0))
     if time.time_ns() - newest < RACY_SECONDS * 1e9:
         return ""
-    return hashlib.sha256("\n".join(parts).encode("utf-8", "surrogateescape")).hexdigest()
+    h = hashlib.sha256("\n".join(names).encode("utf-8", "surrogateescape"))
+    h.update(numbers.tobytes())
+    return h.hexdigest()
 
 
 def _listed_contents(site: Path, listing: list[Listed], cache: DigestCache | None) -> InstalledFiles:

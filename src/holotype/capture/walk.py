@@ -126,7 +126,7 @@ class ProjectWalker:
         self.excludes = excludes
         self.allow_outside = allow_outside
         self.config_path = config_path
-        self._excluder = _Excluder(excludes)
+        self.excluder = _Excluder(excludes)
         self._everything: dict[str, ProjectFile] | None = None
         self._keys: list[str] = []
         self._values: list[ProjectFile] = []
@@ -152,7 +152,7 @@ class ProjectWalker:
         set_aside = self.set_aside
         if set_aside and (start_rel in set_aside or any(start_rel.startswith(f + "/") for f in set_aside)):
             return
-        excluded = self._excluder if self.excludes else None
+        excluded = self.excluder if self.excludes else None
         outputs = self.outputs
         new = tuple.__new__  # a NamedTuple's own constructor is a Python-level function, and slower
         stack = [(folder, "" if start_rel == "." else start_rel + "/")]

@@ -1,0 +1,161 @@
+"""A head start for a cached `check`: the stamp workers begin before the command has loaded or read anything.
+
+Loading holotype's modules and reading the lock takes a single core a few tenths of a second, and only
+then does a check know which big folders to stamp (folder_stamps.py). The folders are almost always the
+ones the previous check of the same project asked for, so each check leaves a *note* in the user's cache
+folder: the exact worker requests it made, with the identity (inode, size, times) of the project's lock
+and configuration files then. The next check, as soon as it knows the project folder, starts workers for
+the noted requests when those files are unchanged; StampWorkers adopts them only when the requests it
+builds itself are exactly the noted ones, and stops them otherwise. So a stale note costs a little work
+and never an answer: a worker's answer depends only on its request and the files it stats.
+
+Only holotype's own worker module is ever started from a note (never a program the note names), and a
+note naming another project folder is ignored.
+"""
+
+from __future__ import annotations
+
+import atexit
+import hashlib
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+from typing import Any
+
+NOTE_LIMIT = 1 << 20  # a note is a few kilobytes; anything bigger is not one
+_WATCHED = ("holotype.lock", "holotype.toml", "pyproject.toml")
+_started: dict[str, tuple[list[dict[str, Any]], list[subprocess.Popen[bytes]]]] = {}
+
+
+def _note_path(root: str) -> Path:
+    from holotype.capture.digest_cache import default_cache_path
+
+    name = hashlib.sha256(root.encode("utf-8", "surrogateescape")).hexdigest()[:32]
+    return default_cache_path().parent / "head-start" / f"{name}.json"
+
+
+def _identity(root: str) -> list[list[int] | None]:
+    """The identity of the files that decide which folders a check stamps."""
+    out: list[list[int] | None] = []
+    for name in _WATCHED:
+        try:
+            st = os.lstat(os.path.join(root, name))
+        except OSError:
+            out.append(None)
+            continue
+        out.append([st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns])
+    return out
+
+
+def worker_command() -> tuple[list[str], dict[str, str]]:
+    """The command line of a stamp worker, and its environment (holotype's own import path first)."""
+    import holotype
+
+    package_home = str(Path(holotype.__file__).resolve().parents[1])
+    env = {**os.environ,
+           "PYTHONPATH": os.pathsep.join([package_home, *filter(None, [os.environ.get("PYTHONPATH")])])}
+    return [sys.executable, "-S", "-m", "holotype.capture.folder_stamps"], env  # -S: no site-packages needed
+
+
+def spawn(request: dict[str, Any]) -> subprocess.Popen[bytes]:
+    """One stamp worker, given its request."""
+    argv, env = worker_command()
+    proc = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.DEVNULL, env=env)
+    assert proc.stdin is not None
+    try:
+        proc.stdin.write(json.dumps(request).encode())
+        proc.stdin.close()
+    except OSError:
+        stop([proc])
+        raise
+    return proc
+
+
+def stop(procs: list[subprocess.Popen[bytes]]) -> None:
+    for proc in procs:
+        if proc.poll() is None:
+            proc.kill()
+        proc.wait()
+
+
+def _read_note(root: str) -> list[dict[str, Any]] | None:
+    try:
+        path = _note_path(root)
+        with open(path, "rb") as fh:
+            raw = fh.read(NOTE_LIMIT + 1)
+        note = json.loads(raw) if len(raw) <= NOTE_LIMIT else None
+    except (OSError, ValueError, ImportError):
+        return None
+    if not isinstance(note, dict) or note.get("root") != root or note.get("identity") != _identity(root):
+        return None
+    requests = note.get("requests")
+    if not isinstance(requests, list) or not all(isinstance(r, dict) and r.get("root") == root and _inside(
+            r.get("folders")) for r in requests):
+        return None
+    return requests
+
+
+def _inside(folders: Any) -> bool:
+    """Project-relative folders that stay inside the project (as the lock's folder entries are)."""
+    return isinstance(folders, list) and all(
+        isinstance(f, str) and f and not os.path.isabs(f) and ".." not in f.split("/") for f in folders)
+
+
+def begin(project: Path) -> None:
+    """Start the workers the last check of `project` asked for, when its lock and configuration are unchanged."""
+    root = os.path.realpath(project)
+    if root in _started or os.environ.get("HOLOTYPE_NO_HEAD_START"):
+        return
+    requests = _read_note(root)
+    if not requests:
+        return
+    procs: list[subprocess.Popen[bytes]] = []
+    try:
+        for request in requests:
+            procs.append(spawn(request))
+    except OSError:
+        stop(procs)
+        return
+    if not _started:
+        atexit.register(_stop_all)
+    _started[root] = (requests, procs)
+
+
+def take(root: str, requests: list[dict[str, Any]]) -> list[subprocess.Popen[bytes]] | None:
+    """The workers started ahead for exactly these requests; None (and any started for others stopped)."""
+    noted = _started.pop(root, None)
+    if noted is None:
+        return None
+    if noted[0] != requests:
+        stop(noted[1])
+        return None
+    return noted[1]
+
+
+def remember(root: str, requests: list[dict[str, Any]]) -> None:
+    """Leave the note for the next check (written whole, or not at all)."""
+    note = {"root": root, "identity": _identity(root), "requests": requests}
+    try:
+        path = _note_path(root)
+        path.parent.mkdir(parents=True, exist_ok=True)
+        try:
+            if json.loads(path.read_bytes()) == note:
+                return
+        except (OSError, ValueError):
+            pass
+        part = path.with_name(f"{path.name}.{os.getpid()}.part")
+        try:
+            part.write_text(json.dumps(note), encoding="utf-8")
+            os.replace(part, path)
+        finally:
+            part.unlink(missing_ok=True)
+    except (OSError, ImportError):
+        pass  # an optimisation only
+
+
+def _stop_all() -> None:
+    for _, procs in _started.values():
+        stop(procs)
+    _started.clear()
