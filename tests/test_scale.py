@@ -312,3 +312,16 @@ def test_the_plain_stamp_leaves_links_and_unusual_names_to_the_walk(tmp_path: Pa
     (root / "data" / "a" / "latest.dat").unlink()
     write(root / "data" / "a" / "Müller.dat", "x")
     assert plain_stamp(walker, "data/a") is None
+
+
+def test_only_folders_holding_no_other_recorded_folder_are_set_aside(tmp_path: Path) -> None:
+    # "data/a-b" sorts between "data/a" and "data/a/c": a folder's nesting is not its sorted neighbour's
+    from holotype.capture.project import folders_to_set_aside
+    from holotype.config import load_config
+    from holotype.records import FolderRecord
+
+    write(tmp_path / "holotype.toml", 'data = ["data"]\ncode = ["data/scripts"]\nseed = 1\n')
+    names = ["data/a", "data/a-b", "data/a/c", "data/b", "data/scripts/x", "data/ab"]
+    recorded = {f: FolderRecord(f, 1, 1, "0" * 64) for f in names}
+    got = folders_to_set_aside(load_config(tmp_path), recorded)
+    assert sorted(got) == ["data/a-b", "data/a/c", "data/ab", "data/b"]

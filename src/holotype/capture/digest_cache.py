@@ -14,10 +14,9 @@ import time
 from collections.abc import Sequence
 from pathlib import Path
 
-from holotype.capture.hashing import Identity
+from holotype.capture.hashing import RACY_SECONDS, Identity
 from holotype.errors import HolotypeError
 
-RACY_SECONDS = 2.0
 _SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
     dev INTEGER NOT NULL, ino INTEGER NOT NULL, size INTEGER NOT NULL,
     mtime_ns INTEGER NOT NULL, ctime_ns INTEGER NOT NULL, sha256 TEXT NOT NULL,

@@ -17,18 +17,19 @@ from __future__ import annotations
 import hashlib
 import json
 import os
-import subprocess
 import sys
 import time
 from array import array
 from itertools import chain
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-from holotype.capture import head_start
-from holotype.capture.digest_cache import RACY_SECONDS
-from holotype.capture.hashing import Identity
+from holotype.capture.hashing import RACY_SECONDS, Identity
 from holotype.capture.walk import SKIP_FOLDERS, ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
+
+if TYPE_CHECKING:
+    import subprocess
 
 NO_IDENTITY: Identity = (-1, -1, -1, -1, -1)
 WORKER_FILES = 20_000  # below this many files the stamps are taken in this process: a worker costs its start-up
@@ -153,6 +154,8 @@ class StampWorkers:
             k = loads.index(min(loads))
             shares[k].append(rel)
             loads[k] += folders[rel]
+        from holotype.capture import head_start  # not in a worker, which answers and needs no other process
+
         root = os.path.realpath(walker.root)
         request = {"root": root, "excludes": list(walker.excludes), "allow_outside": walker.allow_outside,
                    "outputs": sorted(walker.outputs)}

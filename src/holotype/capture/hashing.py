@@ -18,6 +18,8 @@ import threading
 from collections.abc import Callable, Iterable
 from typing import BinaryIO, Protocol
 
+RACY_SECONDS = 2.0  # a file changed this recently may still share its timestamps with its next write
+
 CHUNK = 1 << 20  # hashlib releases the GIL for updates this large, so threads really run in parallel
 
 Identity = tuple[int, int, int, int, int]  # (device, inode, size, mtime_ns, ctime_ns): digest_cache.py's key

@@ -32,8 +32,9 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import NamedTuple
 
-from holotype.capture.digest_cache import RACY_SECONDS, DigestCache
+from holotype.capture.digest_cache import DigestCache
 from holotype.capture.fingerprints import fingerprint_files
+from holotype.capture.hashing import RACY_SECONDS
 from holotype.capture.walk import ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
 from holotype.records import Environment, FileRecord, PackageRecord

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import bisect
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -55,9 +56,11 @@ def folders_to_set_aside(config: Config, recorded: dict[str, FolderRecord]) -> l
     if not recorded or any(GLOB_CHARS.intersection(p) for p in data):
         return []
     code = [_fixed_prefix(p) for p in config.code or ()]
+    keys = sorted(recorded)
     out = []
     for folder in recorded:
-        if any(other.startswith(folder + "/") for other in recorded):
+        below = bisect.bisect_left(keys, folder + "/")  # the first recorded folder that could lie inside it
+        if below < len(keys) and keys[below].startswith(folder + "/"):
             continue
         if any(p in (".", folder) or folder.startswith(p + "/") for p in data) and \
                 not any(_overlaps(prefix, folder) for prefix in code):
