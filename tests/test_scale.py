@@ -325,3 +325,23 @@ def test_only_folders_holding_no_other_recorded_folder_are_set_aside(tmp_path: P
     recorded = {f: FolderRecord(f, 1, 1, "0" * 64) for f in names}
     got = folders_to_set_aside(load_config(tmp_path), recorded)
     assert sorted(got) == ["data/a-b", "data/a/c", "data/ab", "data/b"]
+
+
+def test_the_cyclic_collector_is_paused_while_files_are_captured_and_restored_after(
+        project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import gc
+
+    from holotype.capture import project as capture
+
+    seen: list[bool] = []
+    real = capture.fingerprint_data
+    monkeypatch.setattr(capture, "fingerprint_data", lambda *a, **k: seen.append(gc.isenabled()) or real(*a, **k))
+    assert gc.isenabled()
+    assert findings(project)[0] == 0
+    assert seen == [False] and gc.isenabled()
+    gc.disable()  # a caller that paused it itself gets it back paused
+    try:
+        assert findings(project)[0] == 0
+        assert not gc.isenabled()
+    finally:
+        gc.enable()
