@@ -310,6 +310,7 @@ def test_a_byte_changed_inside_an_installed_wheel_fails_naming_the_file(tmp_path
     if trust == "cached answers":  # files just installed are never trusted from the cache; here they are
         monkeypatch.setattr("holotype.capture.installed.RACY_SECONDS", 0)
         monkeypatch.setattr("holotype.capture.digest_cache.RACY_SECONDS", 0)
+        monkeypatch.setattr("holotype.capture.hashing.RACY_SECONDS", 0)  # the packages' identity stamps
     venv = make_venv(tmp_path / "venv", wheelhouse)
     venv.install("alpha==1.0", "gamma==1.0")  # alpha requires beta; gamma is not used
     root = _importing(tmp_path / "p", venv.python, "alpha")

@@ -45,6 +45,10 @@ def taken(monkeypatch: pytest.MonkeyPatch) -> list[bool]:
     return got
 
 
+def ahead_for(root: Path) -> bool:
+    return os.path.realpath(root) in head_start._started
+
+
 def note_of(root: Path) -> Path:
     return head_start._note_path(os.path.realpath(root))
 
@@ -56,13 +60,13 @@ def test_the_next_check_adopts_the_workers_started_ahead_and_sees_a_change(proje
     code, found = findings(project)
     assert taken == [True, True]  # the same request: the workers' stamp shows the change, and the file is named
     assert code == 1 and [f["subject"] for f in found] == ["data/east/well00007.dat"]
-    assert not head_start._started
+    assert not head_start._started  # nothing is left running after a check
 
 
 def test_a_changed_configuration_starts_nothing_ahead(project: Path, taken: list[bool]) -> None:
     write(project / "holotype.toml", 'data = ["data"]\ncode = []\nseed = 1\nexclude = ["*.tmp"]\n')
     head_start.begin(project)
-    assert not head_start._started  # the note was left with another configuration: no work is started on it
+    assert not ahead_for(project)  # the note was left with another configuration: no work is started on it
     assert findings(project) == (0, [])
     assert taken == [False]
     assert findings(project) == (0, []) and taken == [False, True]  # the note was written anew
@@ -79,7 +83,7 @@ def test_workers_started_for_other_requests_are_stopped_and_not_used(project: Pa
     monkeypatch.setattr(head_start, "spawn", lambda request: started.append(real_spawn(request)) or started[-1])
     head_start.begin(project)
     ahead = list(started)
-    assert ahead and head_start._started
+    assert ahead and ahead_for(project)
     assert findings(project) == (0, [])
     assert taken == [False] and all(p.poll() is not None for p in ahead)
     assert json.loads(note_of(project).read_text())["requests"] != note["requests"]
@@ -102,7 +106,7 @@ def test_a_note_that_is_not_trusted_starts_nothing(project: Path, damage: str,
         path.write_text(json.dumps({**note, "padding": "x" * (head_start.NOTE_LIMIT + 1)}))
     monkeypatch.setattr(head_start, "spawn", lambda request: pytest.fail("a worker was started from the note"))
     head_start.begin(project)
-    assert not head_start._started
+    assert not ahead_for(project)
 
 
 def test_check_full_and_the_switch_start_nothing_ahead(project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
@@ -110,4 +114,24 @@ def test_check_full_and_the_switch_start_nothing_ahead(project: Path, monkeypatc
     assert run_cli("check", "--full", "--quiet", "-C", project).code == 0
     monkeypatch.setenv("HOLOTYPE_NO_HEAD_START", "1")
     head_start.begin(project)
+    assert not ahead_for(project)
+
+
+def test_workers_started_ahead_and_not_taken_are_stopped_when_the_check_ends(
+        project: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the check stops before it reaches the folders (an error), so it never asks for the workers
+    from holotype.commands import check as check_command
+    from holotype.errors import LockfileError
+
+    started: list[subprocess.Popen[bytes]] = []
+    real_spawn = head_start.spawn
+    monkeypatch.setattr(head_start, "spawn", lambda request: started.append(real_spawn(request)) or started[-1])
+
+    def fails(*args: object, **kwargs: object) -> None:
+        raise LockfileError("cannot be judged", project / "holotype.lock")
+
+    monkeypatch.setattr(check_command, "check_project", fails)
+    result = run_cli("check", "--quiet", "-C", project)
+    assert result.code == 2 and "cannot be judged" in result.err
+    assert started and all(p.poll() is not None for p in started)
     assert not head_start._started

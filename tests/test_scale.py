@@ -264,10 +264,10 @@ def _walk_stamp(walker: object, rel: str) -> tuple[str, int]:
 def test_the_plain_stamp_equals_the_stamp_of_the_walk(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # the fast stamp walk must see exactly the files the project walk sees: nested folders, excludes (by
     # name and by path), declared outputs, skipped folders and a virtual environment left out
-    from holotype.capture import folder_stamps
+    from holotype.capture import hashing
     from holotype.capture.folder_stamps import plain_stamp
 
-    monkeypatch.setattr(folder_stamps, "RACY_SECONDS", -10)  # files made a moment ago get a stamp too
+    monkeypatch.setattr(hashing, "RACY_SECONDS", -10)  # files made a moment ago get a stamp too
     from holotype.capture.walk import ProjectWalker
 
     root = tmp_path / "proj"

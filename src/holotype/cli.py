@@ -330,13 +330,16 @@ def record(session: Session, no_run: bool, python: str | None, jobs: int | None,
 @click.option("--strict", is_flag=True, help="Treat warnings as failures.")
 def check(session: Session, full: bool, strict: bool, python: str | None) -> Judgement:
     """Compare the project as it is now with holotype.lock, running nothing."""
+    from holotype.capture import head_start
+
     if not full:  # the stamp workers the last check asked for start while the rest of holotype loads
-        from holotype.capture.head_start import begin
+        head_start.begin(session.project)
+    try:
+        from holotype.commands.check import check_project
 
-        begin(session.project)
-    from holotype.commands.check import check_project
-
-    return check_project(session.project, strict=strict, full=full, python=python, progress=_hash_bar(session))
+        return check_project(session.project, strict=strict, full=full, python=python, progress=_hash_bar(session))
+    finally:
+        head_start.finish()
 
 
 @findings_command("replay", python=True)

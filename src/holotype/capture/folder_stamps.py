@@ -14,17 +14,15 @@ root, its excludes and outputs, and the folders) and answers one JSON list of [f
 
 from __future__ import annotations
 
-import hashlib
 import json
 import os
 import sys
-import time
 from array import array
 from itertools import chain
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from holotype.capture.hashing import RACY_SECONDS, Identity
+from holotype.capture.hashing import Identity, identities_digest
 from holotype.capture.walk import SKIP_FOLDERS, ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
 
@@ -44,16 +42,6 @@ def _link_identity(item: ProjectFile) -> tuple[Identity, str]:
         return NO_IDENTITY, "\0"  # unreadable now: such a file makes the folder's digest report a problem
 
 
-def _digest(names: list[str], numbers: array[int]) -> str:
-    """The stamp of files named `names` (in path order) with their identities flattened into `numbers`."""
-    newest = max(max(numbers[3::5], default=0), max(numbers[4::5], default=0))
-    if time.time_ns() - newest < RACY_SECONDS * 1e9:
-        return ""
-    h = hashlib.sha256("\0".join(names).encode("utf-8", "surrogateescape"))
-    h.update(numbers.tobytes())
-    return h.hexdigest()
-
-
 def stamp(files: list[ProjectFile]) -> str:
     """One digest of the files' paths and identities (in path order); "" when one changed too recently."""
     names = [f.rel for f in files]
@@ -62,7 +50,7 @@ def stamp(files: list[ProjectFile]) -> str:
         if f.is_link or f.ident is None:
             idents[i], text = _link_identity(f)
             names[i] = f"{f.rel}\0{text}"
-    return _digest(names, array("q", chain.from_iterable(idents)))
+    return identities_digest(names, array("q", chain.from_iterable(idents)), 5)
 
 
 def plain_stamp(walker: ProjectWalker, rel: str) -> tuple[str, int] | None:
@@ -113,7 +101,7 @@ def plain_stamp(walker: ProjectWalker, rel: str) -> tuple[str, int] | None:
     numbers = array("q")
     for row in rows:
         numbers.extend(row[1:])
-    return _digest([row[0] for row in rows], numbers), len(rows)
+    return identities_digest([row[0] for row in rows], numbers, 5), len(rows)
 
 
 def stamps_of(walker: ProjectWalker, folders: list[str]) -> list[tuple[str, str, int]]:

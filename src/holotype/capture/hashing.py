@@ -15,10 +15,23 @@ import os
 import stat
 import sys
 import threading
+import time
+from array import array
 from collections.abc import Callable, Iterable
 from typing import BinaryIO, Protocol
 
 RACY_SECONDS = 2.0  # a file changed this recently may still share its timestamps with its next write
+
+
+def identities_digest(names: list[str], numbers: array[int], width: int) -> str:
+    """One SHA-256 over files' names (in a fixed order) and their identity numbers, `width` per file, the
+    mtime and ctime (in ns) at positions 3 and 4; "" when a file changed too recently to be trusted."""
+    newest = max(max(numbers[3::width], default=0), max(numbers[4::width], default=0))
+    if time.time_ns() - newest < RACY_SECONDS * 1e9:
+        return ""
+    h = hashlib.sha256("\0".join(names).encode("utf-8", "surrogateescape"))
+    h.update(numbers.tobytes())
+    return h.hexdigest()
 
 CHUNK = 1 << 20  # hashlib releases the GIL for updates this large, so threads really run in parallel
 

@@ -15,7 +15,6 @@ note naming another project folder is ignored.
 
 from __future__ import annotations
 
-import atexit
 import hashlib
 import json
 import os
@@ -118,8 +117,6 @@ def begin(project: Path) -> None:
     except OSError:
         stop(procs)
         return
-    if not _started:
-        atexit.register(_stop_all)
     _started[root] = (requests, procs)
 
 
@@ -155,7 +152,8 @@ def remember(root: str, requests: list[dict[str, Any]]) -> None:
         pass  # an optimisation only
 
 
-def _stop_all() -> None:
-    for _, procs in _started.values():
-        stop(procs)
-    _started.clear()
+def finish() -> None:
+    """Stop the workers started ahead that the command did not take (it found no folder to set aside, or
+    stopped early on an error)."""
+    while _started:
+        stop(_started.popitem()[1][1])

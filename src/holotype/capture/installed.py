@@ -34,7 +34,7 @@ from typing import NamedTuple
 
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.fingerprints import fingerprint_files
-from holotype.capture.hashing import RACY_SECONDS
+from holotype.capture.hashing import RACY_SECONDS, identities_digest
 from holotype.capture.walk import ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
 from holotype.records import Environment, FileRecord, PackageRecord
@@ -241,12 +241,7 @@ def _identities(site: Path, listing: list[Listed]) -> str:
             continue
         names.append(rel)
         add((st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns, st.st_mode))
-    newest = max(max(numbers[3::6], default=0), max(numbers[4::6], default=0))
-    if time.time_ns() - newest < RACY_SECONDS * 1e9:
-        return ""
-    h = hashlib.sha256("\n".join(names).encode("utf-8", "surrogateescape"))
-    h.update(numbers.tobytes())
-    return h.hexdigest()
+    return identities_digest(names, numbers, 6)
 
 
 def _listed_contents(site: Path, listing: list[Listed], cache: DigestCache | None) -> InstalledFiles:
