@@ -135,3 +135,41 @@ def test_workers_started_ahead_and_not_taken_are_stopped_when_the_check_ends(
     assert result.code == 2 and "cannot be judged" in result.err
     assert started and all(p.poll() is not None for p in started)
     assert not head_start._started
+
+
+def test_the_check_adopts_the_probe_started_ahead(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    root = tmp_path / "small"
+    write(root / "holotype.toml", 'data = ["lake.csv"]\ncode = []\nseed = 1\n')
+    write(root / "lake.csv", "depth\n1.5\n")
+    assert run_cli("record", "--no-run", "--quiet", "-C", root).code == 0
+    adopted: list[bool] = []
+    real = head_start.probe_for
+    monkeypatch.setattr(head_start, "probe_for",
+                        lambda *args: (lambda got: adopted.append(got is not None) or got)(real(*args)))
+    assert run_cli("check", "--quiet", "-C", root).code == 0
+    assert adopted == [True] and not head_start._probes
+
+
+def test_a_probe_started_for_another_interpreter_is_stopped_not_used(tmp_path: Path,
+                                                                     monkeypatch: pytest.MonkeyPatch) -> None:
+    import sys
+
+    root = tmp_path / "small"
+    write(root / "holotype.toml", 'data = ["lake.csv"]\ncode = []\nseed = 1\n')
+    write(root / "lake.csv", "depth\n1.5\n")
+    assert run_cli("record", "--no-run", "--quiet", "-C", root).code == 0
+    head_start.begin_probe(root, sys.executable)  # chosen by --python: not what the check below resolves
+    early = list(head_start._probes.values())
+    assert len(early) == 1
+    monkeypatch.setattr(head_start, "begin_probe", lambda *args: None)
+    assert run_cli("check", "--quiet", "-C", root).code == 0
+    assert early[0].proc.poll() is not None and not head_start._probes
+
+
+def test_a_configuration_that_cannot_be_read_starts_no_probe_and_the_command_says_why(tmp_path: Path) -> None:
+    root = tmp_path / "broken"
+    write(root / "holotype.toml", 'data = [\n')
+    head_start.begin_probe(root)
+    assert not head_start._probes
+    result = run_cli("check", "-C", root)
+    assert result.code == 2 and "holotype.toml" in result.err and "Traceback" not in result.err

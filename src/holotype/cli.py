@@ -332,7 +332,9 @@ def check(session: Session, full: bool, strict: bool, python: str | None) -> Jud
     """Compare the project as it is now with holotype.lock, running nothing."""
     from holotype.capture import head_start
 
-    if not full:  # the stamp workers the last check asked for start while the rest of holotype loads
+    # the probe, and the stamp workers the last check asked for, start while the rest of holotype loads
+    head_start.begin_probe(session.project, python)
+    if not full:
         head_start.begin(session.project)
     try:
         from holotype.commands.check import check_project

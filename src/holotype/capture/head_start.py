@@ -1,4 +1,9 @@
-"""A head start for a cached `check`: the stamp workers begin before the command has loaded or read anything.
+"""A head start for `check`: the interpreter probe and the stamp workers begin before the command has loaded
+the rest of holotype or read the lock.
+
+The probe (environment.py) depends only on the configuration, so it starts as soon as the project's
+configuration is read, for the interpreter that configuration names; capture_project adopts it when it
+resolves the same interpreter the same way.
 
 Loading holotype's modules and reading the lock takes a single core a few tenths of a second, and only
 then does a check know which big folders to stamp (folder_stamps.py). The folders are almost always the
@@ -21,11 +26,15 @@ import os
 import subprocess
 import sys
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
+
+if TYPE_CHECKING:
+    from holotype.capture.environment import ProbeRun
 
 NOTE_LIMIT = 1 << 20  # a note is a few kilobytes; anything bigger is not one
 _WATCHED = ("holotype.lock", "holotype.toml", "pyproject.toml")
 _started: dict[str, tuple[list[dict[str, Any]], list[subprocess.Popen[bytes]]]] = {}
+_probes: dict[tuple[str, str, str], ProbeRun] = {}  # (interpreter, how it was chosen, project folder)
 
 
 def _note_path(root: str) -> Path:
@@ -102,6 +111,28 @@ def _inside(folders: Any) -> bool:
         isinstance(f, str) and f and not os.path.isabs(f) and ".." not in f.split("/") for f in folders)
 
 
+def begin_probe(project: Path, python_override: str | None = None) -> None:
+    """Start the probe of the interpreter the project's configuration names. Any problem is left to the
+    command itself, which meets it again and says what is wrong."""
+    from holotype.capture.environment import ProbeRun, resolve_python
+    from holotype.config import load_config
+    from holotype.errors import HolotypeError
+
+    try:
+        config = load_config(project)
+        python, how = resolve_python(config.python, config.root, python_override)
+        key = (python, how, os.path.realpath(config.root))
+        if key not in _probes:
+            _probes[key] = ProbeRun(python, config.root, how)
+    except (HolotypeError, OSError):
+        return
+
+
+def probe_for(python: str, how: str, root: Path) -> ProbeRun | None:
+    """The probe started ahead for this interpreter, chosen this way, for this project; None if none was."""
+    return _probes.pop((python, how, os.path.realpath(root)), None)
+
+
 def begin(project: Path) -> None:
     """Start the workers the last check of `project` asked for, when its lock and configuration are unchanged."""
     root = os.path.realpath(project)
@@ -153,7 +184,11 @@ def remember(root: str, requests: list[dict[str, Any]]) -> None:
 
 
 def finish() -> None:
-    """Stop the workers started ahead that the command did not take (it found no folder to set aside, or
-    stopped early on an error)."""
+    """Stop what was started ahead and not taken: workers (the command found no folder to set aside, or
+    stopped early on an error) and probes."""
     while _started:
         stop(_started.popitem()[1][1])
+    while _probes:
+        probe = _probes.popitem()[1]
+        if probe.proc.poll() is None:
+            probe.stop()

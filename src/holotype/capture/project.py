@@ -9,6 +9,7 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
+from holotype.capture import head_start
 from holotype.capture.data_folders import DataResult, fingerprint_data, remembered_stamps
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
@@ -181,7 +182,8 @@ def capture_project(config: Config, *, python_override: str | None = None, full:
 def _capture(config: Config, python_override: str | None, full: bool, progress: HashProgress | None, numerics: bool,
              recorded_folders: dict[str, FolderRecord], listings: bool) -> ProjectCapture:
     python, how = resolve_python(config.python, config.root, python_override)
-    probe = ProbeRun(python, config.root, how)  # runs while the files are walked and hashed
+    # runs while the files are walked and hashed (a check may have started it already: head_start.py)
+    probe = head_start.probe_for(python, how, config.root) or ProbeRun(python, config.root, how)
     # a first record starts the numeric inspection now, to run while files are hashed; a check usually finds
     # its answer in the cache, and starts it only when it does not (importing NumPy and friends costs CPU)
     inspection = start_inspection(python, config.threads) if numerics and listings else None
