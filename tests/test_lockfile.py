@@ -115,3 +115,22 @@ def test_atomic_write_preserves_mode(tmp_path: Path) -> None:
     path.chmod(0o640)
     write_atomic(path, "y")
     assert path.read_text() == "y" and (path.stat().st_mode & 0o777) == 0o640
+
+
+def test_new_files_take_the_umask_without_writes_setting_it(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # reading the umask means setting it (os.umask), which would race with threads creating files (the
+    # store writes its objects from several): it is read once, at import, never while writing
+    import os
+    import stat
+    from concurrent.futures import ThreadPoolExecutor
+
+    from holotype import atomic
+
+    def no_umask(mask: int) -> int:
+        raise AssertionError("os.umask was called while writing")
+
+    monkeypatch.setattr(os, "umask", no_umask)
+    paths = [tmp_path / f"object-{i}" for i in range(16)]
+    with ThreadPoolExecutor(max_workers=4) as pool:
+        list(pool.map(lambda p: write_atomic(p, "x"), paths))
+    assert {stat.S_IMODE(p.stat().st_mode) for p in paths} == {0o666 & ~atomic.UMASK}

@@ -11,6 +11,18 @@ from holotype.errors import WriteError
 TEMP_PREFIX = ".holotype-tmp-"
 
 
+def _read_umask() -> int:
+    """The process's umask. Reading it means setting it, so it is read once, when this module is imported
+    (before any of holotype's threads run): toggling it while other threads create files would give theirs
+    the wrong mode."""
+    umask = os.umask(0)
+    os.umask(umask)
+    return umask
+
+
+UMASK = _read_umask()
+
+
 def _fsync_folder(folder: Path) -> None:
     try:
         fd = os.open(folder, os.O_RDONLY)
@@ -50,9 +62,7 @@ def _write_atomic(path: Path, data: bytes | str, mode: int | None) -> None:
         elif path.exists():
             os.chmod(tmp_name, path.stat().st_mode & 0o7777)
         else:
-            umask = os.umask(0)
-            os.umask(umask)
-            os.chmod(tmp_name, 0o666 & ~umask)
+            os.chmod(tmp_name, 0o666 & ~UMASK)
         os.replace(tmp_name, path)
     except BaseException:
         try:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import replace
 from pathlib import Path
 
@@ -139,10 +140,9 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         if any(f.severity == "fail" for f in report_findings):
             return Judgement("record", report_findings, warnings=config.warnings,
                              notes=("nothing written: the lock and baselines are unchanged",))
-        for data in pending:
-            store.baselines.put(data)
-        for listing in capture.data.listings.values():
-            store.baselines.put(listing)
+        # each object is compressed and written with its own fsync: a few threads overlap those waits
+        with ThreadPoolExecutor(max_workers=4, thread_name_prefix="holotype-store") as pool:
+            list(pool.map(store.baselines.put, [*pending, *capture.data.listings.values()]))
         seed_note = None
         if new_seed and config.source is not None:  # written only now that the record succeeded
             add_seed(config.source, config.seed)
