@@ -23,7 +23,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING
 
 from holotype.capture.hashing import Identity, identities_digest
-from holotype.capture.walk import SKIP_FOLDERS, ProjectFile, ProjectWalker, is_excluded
+from holotype.capture.walk import ProjectFile, ProjectWalker, is_excluded
 from holotype.errors import HolotypeError
 
 if TYPE_CHECKING:
@@ -55,15 +55,16 @@ def stamp(files: list[ProjectFile]) -> str:
 
 def plain_stamp(walker: ProjectWalker, rel: str) -> tuple[str, int] | None:
     """`stamp` of the files below folder `rel` as `walker.walk_below` finds them, and their count, taken
-    without building the walk's per-file records: a stat and one small tuple per file, half the time.
+    without building the walk's per-file records: a stat and one small tuple per file, half the time. What it
+    leaves out and where it goes down are the walk's own rules (`leaves_out`, `enters`).
 
     None when the folder holds anything but regular files and folders with plain (ASCII) names: a link, a
     name to check, an entry that cannot be stat-ed. The caller then takes the stamp the walk's way."""
     plain = rel.strip("/") or "."
     if walker.excludes and plain != "." and is_excluded(plain, walker.excludes):
         return "", 0
-    excluded = walker.excluder if walker.excludes else None
-    outputs = walker.outputs
+    leaves_out = walker.leaves_out if walker.excludes or walker.outputs else None
+    enters = walker.enters
     rows: list[tuple[str, int, int, int, int, int]] = []
     add = rows.append
     start = os.path.join(walker.root, rel)
@@ -80,7 +81,7 @@ def plain_stamp(walker: ProjectWalker, rel: str) -> tuple[str, int] | None:
         for entry in entries:
             name = entry.name
             path = prefix + name
-            if (excluded is not None and excluded(path, name)) or (outputs and path in outputs):
+            if leaves_out is not None and leaves_out(path, name):
                 continue
             if not name.isascii():
                 return None
@@ -91,7 +92,7 @@ def plain_stamp(walker: ProjectWalker, rel: str) -> tuple[str, int] | None:
                 elif entry.is_symlink():
                     return None
                 elif entry.is_dir(follow_symlinks=False):
-                    if name not in SKIP_FOLDERS and not os.path.exists(entry.path + "/pyvenv.cfg"):
+                    if enters(name, entry.path):
                         stack.append((entry.path, path + "/"))
             except OSError:
                 return None

@@ -126,7 +126,7 @@ class ProjectWalker:
         self.excludes = excludes
         self.allow_outside = allow_outside
         self.config_path = config_path
-        self.excluder = _Excluder(excludes)
+        self._excluder = _Excluder(excludes)
         self._everything: dict[str, ProjectFile] | None = None
         self._keys: list[str] = []
         self._values: list[ProjectFile] = []
@@ -143,6 +143,15 @@ class ProjectWalker:
             raise ConfigError(f"'{rel}' is a symbolic link leading outside the project (to {os.readlink(full)}); "
                               "set allow_outside = true to permit it", self.config_path)
 
+    def leaves_out(self, rel: str, name: str) -> bool:
+        """Whether the walk passes over entry `name` at project-relative `rel`: excluded, or a declared output."""
+        return bool(self.excludes and self._excluder(rel, name)) or bool(self.outputs and rel in self.outputs)
+
+    @staticmethod
+    def enters(name: str, full: str) -> bool:
+        """Whether the walk goes down into folder `name` (at `full`): not a skipped folder, not a venv."""
+        return name not in SKIP_FOLDERS and not os.path.exists(full + "/pyvenv.cfg")
+
     def _walk_folder(self, folder: str, out: dict[str, ProjectFile], code: list[str] | None = None) -> None:
         """Every file below `folder` into `out`; with `code`, the regular files with a code suffix into it."""
         # relative names are built by joining strings: os.path.relpath per file is the slow part otherwise
@@ -152,8 +161,7 @@ class ProjectWalker:
         set_aside = self.set_aside
         if set_aside and (start_rel in set_aside or any(start_rel.startswith(f + "/") for f in set_aside)):
             return
-        excluded = self.excluder if self.excludes else None
-        outputs = self.outputs
+        leaves_out = self.leaves_out if self.excludes or self.outputs else None
         new = tuple.__new__  # a NamedTuple's own constructor is a Python-level function, and slower
         stack = [(folder, "" if start_rel == "." else start_rel + "/")]
         while stack:
@@ -166,7 +174,7 @@ class ProjectWalker:
             for entry in entries:
                 name = entry.name
                 rel = prefix + name
-                if (excluded is not None and excluded(rel, name)) or (outputs and rel in outputs):
+                if leaves_out is not None and leaves_out(rel, name):
                     continue
                 if not name.isascii():
                     _utf8_name(rel)
@@ -183,8 +191,7 @@ class ProjectWalker:
                         self._check_link(full, rel)
                         out[rel] = ProjectFile(rel, full, True, 0)
                     elif entry.is_dir(follow_symlinks=False):
-                        if name in SKIP_FOLDERS or os.path.exists(full + "/pyvenv.cfg") or \
-                                (set_aside and rel in set_aside):
+                        if not self.enters(name, full) or (set_aside and rel in set_aside):
                             continue
                         stack.append((full, rel + "/"))
                 except OSError:
