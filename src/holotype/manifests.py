@@ -65,16 +65,21 @@ def folder_of(rel: str, chosen: set[str]) -> str | None:
     return None
 
 
+def file_entry(rel: str, sha256: str, size: int) -> bytes:
+    """One regular file's record in a listing object."""
+    return b"f\0%s\0%d\0%s\0" % (sha256.encode("ascii"), size, rel.encode("utf-8", "surrogateescape"))
+
+
 def encode_listing(records: dict[str, FileRecord]) -> bytes:
     """The listing object's bytes for these records (sorted by path, so equal sets give equal bytes)."""
     parts = [MAGIC]
     for rel in sorted(records):
         rec = records[rel]
         if rec.kind == "symlink":
-            fields = (b"l", (rec.target or "").encode("utf-8", "surrogateescape"), b"0")
+            target = (rec.target or "").encode("utf-8", "surrogateescape")
+            parts.append(b"\0".join((b"l", target, b"0", rel.encode("utf-8", "surrogateescape"))) + b"\0")
         else:
-            fields = (b"f", (rec.sha256 or "").encode("ascii"), str(rec.size).encode("ascii"))
-        parts.append(b"\0".join((*fields, rel.encode("utf-8", "surrogateescape"))) + b"\0")
+            parts.append(file_entry(rel, rec.sha256 or "", rec.size))
     return b"".join(parts)
 
 

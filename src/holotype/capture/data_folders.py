@@ -14,9 +14,10 @@ from dataclasses import dataclass, field
 
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
+from holotype.capture.folder_digests import Answer
 from holotype.capture.folder_stamps import stamp
 from holotype.capture.walk import ProjectFile
-from holotype.manifests import choose_folders, folder_of, folder_record
+from holotype.manifests import choose_folders, decode_listing, folder_of, folder_record
 from holotype.records import FileRecord, FolderRecord
 
 
@@ -28,6 +29,14 @@ class DataResult(FingerprintResult):
     folders: dict[str, FolderRecord] = field(default_factory=dict)
     folder_files: dict[str, dict[str, FileRecord]] = field(default_factory=dict)
     listings: dict[str, bytes] = field(default_factory=dict)
+
+    def every_folder_file(self) -> dict[str, dict[str, FileRecord]]:
+        """`folder_files`, with those of the folders digested whole by a worker (only their listing holds them)."""
+        out = dict(self.folder_files)
+        for folder, raw in self.listings.items():
+            if folder not in out:
+                out[folder] = decode_listing(raw, folder, "just made")
+        return out
 
 
 def _key(real_root: str, folder: str) -> str:
@@ -59,11 +68,13 @@ def remembered_stamps(root: str, cache: DigestCache, recorded: dict[str, FolderR
 
 def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestCache | None,
                      recorded: dict[str, FolderRecord] | None = None, progress: HashProgress | None = None,
-                     listings: bool = False, settled: dict[str, FolderRecord] | None = None) -> DataResult:
+                     listings: bool = False, settled: dict[str, FolderRecord] | None = None,
+                     digested: list[Answer] | None = None) -> DataResult:
     """Digest the data files. With `recorded` (check, replay), a folder whose stamp is remembered with the
     recorded listing is taken as unchanged without reading anything more; with `listings` (record), every
     folder's listing bytes are built for the store. `settled` folders were found unchanged by stat before the
-    walk, which left their files out of `files`."""
+    walk, which left their files out of `files`; the folder entries of `digested` were made by workers
+    (folder_digests.py), whose leftover files are in `files`."""
     chosen = choose_folders(files)
     groups: dict[str, list[ProjectFile]] = {f: [] for f in chosen}
     loose: dict[str, ProjectFile] = {}
@@ -93,6 +104,18 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
     digests = fingerprint_files(dict(sorted(to_digest.items())), cache=cache, progress=progress)
     out.problems = digests.problems
     out.files_hashed, out.bytes_hashed, out.cache_hits = digests.files_hashed, digests.bytes_hashed, digests.cache_hits
+    remember: list[tuple[str, str]] = []
+    for answer in digested or ():
+        out.files_hashed += answer.hashed
+        out.bytes_hashed += answer.bytes_hashed
+        out.cache_hits += answer.hits
+        for entry, raw, folder_stamp in answer.folders:
+            out.folders[entry.path] = entry
+            if listings:
+                out.listings[entry.path] = raw
+            if cache is not None and folder_stamp:
+                remember.append((_key(real, entry.path), json.dumps({
+                    "stamp": folder_stamp, "listing": entry.listing, "files": entry.files, "bytes": entry.bytes})))
     per_folder: dict[str, dict[str, FileRecord]] = {}
     for rel, rec in digests.records.items():
         parent = rel.rpartition("/")[0]
@@ -101,7 +124,6 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
             out.records[rel] = rec
         else:
             per_folder.setdefault(folder, {})[rel] = rec
-    remember: list[tuple[str, str]] = []
     for folder in sorted(set(groups) - set(out.folders)):
         records = per_folder.get(folder, {})
         entry, raw = folder_record(folder, records)

@@ -100,6 +100,51 @@ def hash_stable(path: str | bytes, before: Identity, digest: Callable[[str | byt
     raise Unstable()
 
 
+def _read_into(fd: int, view: memoryview) -> int:
+    if _READV:
+        return os.readv(fd, [view])
+    data = os.read(fd, len(view))  # no readv (Windows): a read and a copy
+    view[:len(data)] = data
+    return len(data)
+
+
+_READV = hasattr(os, "readv")
+
+
+def digest_walked(path: str | bytes, before: Identity, buf: bytearray) -> tuple[str, Identity]:
+    """`hash_stable` for a file the walk has just stat-ed, with the fewest system calls: open, one read into
+    `buf` (a file smaller than it), fstat, close. As `sha256_file`, it opens without following a link and
+    refuses (OSError) what is not a regular file; Unstable when the file kept changing while it was read."""
+    view = memoryview(buf)
+    for _ in range(2):
+        fd = os.open(path, _OPEN_FLAGS)
+        try:
+            size = before[2]
+            n = -1
+            if size < len(buf):  # small: one read of one byte more than the walk saw says whether that was all
+                n = _read_into(fd, view[:size + 1])
+                h = hashlib.sha256(view[:n])
+            st = os.fstat(fd)
+            if not stat.S_ISREG(st.st_mode):
+                raise OSError(errno.EINVAL, "not a regular file (a link, pipe or device took its place)")
+            if n == -1 or n > size:  # big, or it grew: read on to the end
+                if n == -1:
+                    h = hashlib.sha256()
+                while True:
+                    n = _read_into(fd, view)
+                    if not n:
+                        break
+                    h.update(view[:n])
+                st = os.fstat(fd)
+        finally:
+            os.close(fd)
+        after = identity_of(st)
+        if (before[2], before[3]) == (after[2], after[3]):
+            return h.hexdigest(), after
+        before = after
+    raise Unstable()
+
+
 Outcome = tuple[str, Identity] | OSError | Unstable
 
 

@@ -58,14 +58,15 @@ def _identity(root: str) -> list[list[int] | None]:
     return out
 
 
-def worker_command() -> tuple[list[str], dict[str, str]]:
-    """The command line of a stamp worker, and its environment (holotype's own import path first)."""
+def worker_command(module: str = "holotype.capture.folder_stamps") -> tuple[list[str], dict[str, str]]:
+    """The command line of one of holotype's worker modules (a stamp worker unless told), and its environment
+    (holotype's own import path first)."""
     import holotype
 
     package_home = str(Path(holotype.__file__).resolve().parents[1])
     env = {**os.environ,
            "PYTHONPATH": os.pathsep.join([package_home, *filter(None, [os.environ.get("PYTHONPATH")])])}
-    return [sys.executable, "-S", "-m", "holotype.capture.folder_stamps"], env  # -S: no site-packages needed
+    return [sys.executable, "-S", "-m", module], env  # -S: no site-packages needed
 
 
 def spawn(request: dict[str, Any]) -> subprocess.Popen[bytes]:

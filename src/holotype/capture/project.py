@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import bisect
 import gc
-from collections.abc import Iterator
+import os
+from collections.abc import Iterable, Iterator
 from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -14,12 +15,13 @@ from holotype.capture.data_folders import DataResult, fingerprint_data, remember
 from holotype.capture.digest_cache import DigestCache
 from holotype.capture.environment import ProbeRun, environment_from_probe, resolve_python
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
+from holotype.capture.folder_digests import APART_MIN_FILES, MAX_SPLIT_DEPTH, Answer, FolderDigesters
 from holotype.capture.folder_stamps import StampWorkers
 from holotype.capture.imports import scan_imports
 from holotype.capture.installed import digest_installed, with_installed
 from holotype.capture.numerics import finish_inspection, start_inspection
 from holotype.capture.usage import declared_requirements, mark_used, truthful_requested, used_closure
-from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex
+from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex, is_excluded
 from holotype.config import Config
 from holotype.errors import ConfigError
 from holotype.records import Environment, FolderRecord, NumericStack
@@ -72,6 +74,78 @@ def folders_to_set_aside(config: Config, recorded: dict[str, FolderRecord]) -> l
     return out
 
 
+def _subfolders(walker: ProjectWalker, rel: str) -> tuple[list[str], bool] | None:
+    """The folders directly inside project-relative folder `rel` the walk would go into (those with plain
+    names; None when it holds another kind), and whether `rel` holds anything else."""
+    try:
+        with os.scandir(os.path.join(walker.root, rel)) as it:
+            entries = list(it)
+    except OSError:
+        return None
+    prefix = "" if rel == "." else rel + "/"
+    out: list[str] = []
+    other = False
+    for entry in entries:
+        path = prefix + entry.name
+        if walker.leaves_out(path, entry.name):
+            continue
+        if not entry.name.isascii():
+            return None
+        try:
+            if entry.is_dir(follow_symlinks=False):
+                if walker.enters(entry.name, entry.path):
+                    out.append(path)
+                continue
+        except OSError:
+            return None
+        other = True
+    return sorted(out), other
+
+
+def _enough_files(root: Path, folders: list[str], wanted: int) -> bool:
+    """Whether at least `wanted` entries lie below `folders`, counted by name alone (and only that far)."""
+    seen = 0
+    stack = [os.path.join(root, f) for f in folders]
+    while stack:
+        try:
+            with os.scandir(stack.pop()) as it:
+                for entry in it:
+                    seen += 1
+                    if entry.is_dir(follow_symlinks=False):
+                        stack.append(entry.path)
+        except OSError:
+            continue
+        if seen >= wanted:
+            return True
+    return False
+
+
+def subfolders_apart(config: Config) -> list[str]:
+    """The folders a record hands to worker processes (folder_digests.py): the subfolders of its plain data
+    folders (a lone one opened up further, so the work can be shared out), none holding code, and only when
+    they hold enough files for workers to pay."""
+    data = [p.rstrip("/") or "." for p in config.data]
+    if not data or any(GLOB_CHARS.intersection(p) for p in data):
+        return []
+    code = [_fixed_prefix(p) for p in config.code or ()]
+    walker = project_walker(config)
+    found: set[str] = set()
+    for pattern in data:
+        full = os.path.join(config.root, pattern)
+        if pattern != "." and (os.path.islink(full) or is_excluded(pattern, config.exclude) or
+                               not walker.enters(os.path.basename(full), full)):
+            continue
+        listed = _subfolders(walker, pattern)
+        depth = 0
+        while listed is not None and len(listed[0]) == 1 and depth < MAX_SPLIT_DEPTH:
+            depth += 1
+            listed = _subfolders(walker, listed[0][0])
+        found.update(f for f in (listed[0] if listed else ()) if not any(_overlaps(p, f) for p in code))
+    ordered = sorted(found)
+    kept = [f for i, f in enumerate(ordered) if not any(f.startswith(g + "/") for g in ordered[:i])]
+    return kept if len(kept) > 1 and _enough_files(config.root, kept, APART_MIN_FILES) else []
+
+
 def project_walker(config: Config, set_aside: frozenset[str] = frozenset()) -> ProjectWalker:
     outputs = frozenset(out for a in config.analyses for out in a.outputs)
     return ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, outputs, set_aside)
@@ -111,6 +185,21 @@ def tracked_files(config: Config, walker: ProjectWalker | None = None) -> tuple[
     return data, code, unmatched
 
 
+def _newly_unmatched(config: Config, walker: ProjectWalker, unmatched: list[str], entries: Iterable[str],
+                     data: dict[str, ProjectFile]) -> list[str]:
+    """The data patterns whose files were all in folders set aside, which turned out to hold none of them:
+    those match nothing now (`entries` are the folder entries found there)."""
+    entries = list(entries)
+    out = list(unmatched)
+    for pattern in config.data:
+        plain = pattern.rstrip("/") or "."
+        if pattern not in out and walker.covers_set_aside(pattern) and not any(
+                _overlaps(plain, f) for f in entries) and not any(
+                plain == "." or rel.startswith(plain + "/") or rel == plain for rel in data):
+            out.append(pattern)
+    return out
+
+
 class SetAside:
     """The recorded folders whose stamps worker processes take while this process walks the rest of the
     project (and reads the environment); `finish` adds the files of those that changed to the data files."""
@@ -144,13 +233,49 @@ class SetAside:
                 self.walker.walk_below(folder, changed)
         if changed:
             data = dict(sorted({**data, **changed}.items()))
-        for pattern in self.config.data:  # its files were all set aside, and are now gone: it matched nothing
-            plain = pattern.rstrip("/") or "."
-            if pattern not in unmatched and self.walker.covers_set_aside(pattern) and not any(
-                    _overlaps(plain, f) for f in settled) and not any(
-                    plain == "." or rel.startswith(plain + "/") or rel == plain for rel in data):
-                unmatched.append(pattern)
-        return data, unmatched, settled
+        return data, _newly_unmatched(self.config, self.walker, unmatched, settled, data), settled
+
+
+class Apart:
+    """The data subfolders a record's worker processes digest whole (folder_digests.py) while this process
+    walks the rest of the project and reads the environment; `finish` takes their answers."""
+
+    def __init__(self, config: Config, subfolders: list[str], cache: DigestCache) -> None:
+        self.config = config
+        self.walker = project_walker(config, frozenset(subfolders))
+        self.digesters = FolderDigesters(project_walker(config), subfolders, cache.path if cache.conn else None)
+
+    @classmethod
+    def start(cls, config: Config, cache: DigestCache | None) -> Apart | None:
+        subfolders = subfolders_apart(config) if cache is not None else []
+        return cls(config, subfolders, cache) if subfolders and cache is not None else None
+
+    def stop(self) -> None:
+        self.digesters.stop()
+
+    def finish(self, data: dict[str, ProjectFile], unmatched: list[str], progress: HashProgress | None) -> tuple[
+            dict[str, ProjectFile], list[str], list[Answer]]:
+        """The data files with the leftovers and the declined subfolders' files added, the unmatched patterns,
+        and the workers' answers."""
+        if progress is not None:
+            progress.begin(0, 0)
+        try:
+            got = self.digesters.result(progress.advance if progress is not None else None)
+        finally:
+            if progress is not None:
+                progress.end()
+        added: dict[str, ProjectFile] = {}
+        for rel in got.declined:
+            self.walker.walk_below(rel, added)
+        root = str(self.config.root)
+        for answer in got.answers.values():
+            for rel, dev, ino, size, mtime, ctime in answer.loose:
+                added[rel] = ProjectFile(rel, os.path.join(root, rel), False, size, (dev, ino, size, mtime, ctime))
+        if added:
+            data = dict(sorted({**data, **added}.items()))
+        answers = list(got.answers.values())
+        entries = [rec.path for a in answers for rec, _, _ in a.folders]
+        return data, _newly_unmatched(self.config, self.walker, unmatched, entries, data), answers
 
 
 @contextmanager
@@ -191,8 +316,10 @@ def _capture(config: Config, python_override: str | None, full: bool, progress: 
     try:
         cache = None if full else DigestCache()
         aside = SetAside.start(config, cache, recorded_folders) if not listings else None
+        apart = Apart.start(config, cache) if listings else None
         try:
-            data_files, code_files, unmatched = tracked_files(config, aside.walker if aside else None)
+            walker = aside.walker if aside else apart.walker if apart else None
+            data_files, code_files, unmatched = tracked_files(config, walker)
             scan = scan_imports([(rel, Path(f.path)) for rel, f in code_files.items()
                                  if rel.endswith((".py", ".ipynb"))])
             outputs = {out for a in config.analyses for out in a.outputs}
@@ -201,22 +328,27 @@ def _capture(config: Config, python_override: str | None, full: bool, progress: 
                 got = environment_from_probe(probe.result(), config.root, python)
                 return with_installed(got, digest_installed(
                     got, Path(config.root), cache=cache, excludes=config.exclude, skip=set(data_files) | outputs,
-                    skip_below=set(aside.remembered) if aside else ()))
+                    skip_below=set(aside.remembered) if aside else apart.walker.set_aside if apart else ()))
 
             env = None
             settled: dict[str, FolderRecord] = {}
+            answers: list[Answer] = []
             if aside is not None:
                 env = environment()  # while the workers take the stamps
                 data_files, unmatched, settled = aside.finish(data_files, unmatched)
+            if apart is not None:
+                env = environment()  # while the workers digest their subfolders
+                data_files, unmatched, answers = apart.finish(data_files, unmatched, progress)
             data = fingerprint_data(data_files, str(config.root), cache=cache, recorded=recorded_folders,
-                                    progress=progress, listings=listings, settled=settled)
+                                    progress=progress, listings=listings, settled=settled, digested=answers)
             code = fingerprint_files(code_files, cache=cache)
             env = env or environment()  # after the hashing when nothing was set aside: the probe runs meanwhile
             if numerics:
                 stack = finish_inspection(inspection, python, env, config.threads, cache)
         finally:
-            if aside is not None:
-                aside.stop()
+            for started in (aside, apart):
+                if started is not None:
+                    started.stop()
             if cache is not None:
                 cache.close()
     finally:

@@ -81,7 +81,7 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
         for listing in capture.data.listings.values():
             store.baselines.put(listing)
         changed = compare_data(store.baselines, lock.data, lock.data_folders, capture.data.records,
-                               capture.data.folders, capture.data.folder_files)
+                               capture.data.folders, capture.data.every_folder_file())
         for f in changed + compare_file_sets("code", lock.code, capture.code.records):
             findings.append(Finding(f.area, f.subject, "lockfile.note", f"re-recorded with the baselines: {f.message}"))
         lock.data, lock.data_folders, lock.code = capture.data.records, capture.data.folders, capture.code.records

@@ -47,9 +47,11 @@ class HashBar:
                                      TextColumn("{task.fields[files]}"), TimeRemainingColumn(),
                                      console=self.console, transient=True)
             self.progress.start()
-            self.task = self.progress.add_task("hash", total=self.total, files="")
+            # no totals (workers digest whole folders, and count as they go): a bar without an end
+            self.task = self.progress.add_task("hash", total=self.total or None, files="")
         assert self.task is not None
-        self.progress.update(self.task, completed=nbytes, files=f"{files_done}/{self.files} files")
+        shown = f"{files_done}/{self.files} files" if self.files else f"{files_done} files"
+        self.progress.update(self.task, completed=nbytes, files=shown)
 
     def end(self) -> None:
         if self.progress is not None:
