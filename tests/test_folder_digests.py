@@ -13,7 +13,7 @@ import pytest
 
 from conftest import run_cli, write
 from holotype.capture import folder_digests, project
-from holotype.capture.hashing import CHUNK, Unstable, digest_walked, identity_of
+from holotype.capture.hashing import CHUNK, Unstable, digest_rows, digest_walked, identity_of
 from holotype.lockfile import read_lock
 from holotype.manifests import FOLDER_THRESHOLD
 from holotype.store import BaselineStore
@@ -154,7 +154,7 @@ def test_a_file_that_keeps_changing_makes_the_worker_decline(tmp_path: Path, mon
     def unstable(*args: object) -> tuple[str, object]:
         raise Unstable()
 
-    monkeypatch.setattr(folder_digests, "digest_walked", unstable)
+    monkeypatch.setattr(folder_digests, "digest_rows", unstable)
     assert folder_digests.digest_subfolder(walker, "data/a", None, buf) is None
 
 
@@ -166,6 +166,10 @@ def test_a_walked_file_digest_is_hashlibs(tmp_path: Path, size: int) -> None:
     path.write_bytes(body)
     digest, ident = digest_walked(str(path), identity_of(os.stat(path)), bytearray(CHUNK))
     assert digest == hashlib.sha256(body).hexdigest() and ident == identity_of(os.stat(path))
+    row = ("f.bin", *identity_of(os.stat(path)))
+    assert digest_rows(str(tmp_path), 0, [row], {}, bytearray(CHUNK)) == ([digest], [size], [(ident, digest)])
+    # a file the cache knows by its identity is not read again
+    assert digest_rows(str(tmp_path), 0, [row], {ident: "0" * 64}, bytearray(CHUNK)) == (["0" * 64], [size], [])
 
 
 def test_a_walked_file_that_grew_is_read_to_its_end(tmp_path: Path) -> None:
@@ -175,6 +179,10 @@ def test_a_walked_file_that_grew_is_read_to_its_end(tmp_path: Path) -> None:
     path.write_bytes(b"abcdef" * 1000)  # grew after the walk saw it
     digest, ident = digest_walked(str(path), before, bytearray(CHUNK))
     assert digest == hashlib.sha256(b"abcdef" * 1000).hexdigest() and ident[2] == 6000
+    assert digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))[:2] == ([digest], [6000])
+    path.write_bytes(b"ab")  # and shrank
+    assert digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))[:2] == (
+        [hashlib.sha256(b"ab").hexdigest()], [2])
 
 
 def test_a_walked_file_replaced_by_a_link_or_a_pipe_is_refused(tmp_path: Path) -> None:
@@ -189,6 +197,10 @@ def test_a_walked_file_replaced_by_a_link_or_a_pipe_is_refused(tmp_path: Path) -
         os.mkfifo(pipe)
         with pytest.raises(OSError):
             digest_walked(str(pipe), identity_of(os.stat(target)), bytearray(CHUNK))
+        with pytest.raises(OSError):
+            digest_rows(str(tmp_path), 0, [("pipe", *identity_of(os.stat(target)))], {}, bytearray(CHUNK))
+    with pytest.raises(OSError):
+        digest_rows(str(tmp_path), 0, [("link", *identity_of(os.stat(target)))], {}, bytearray(CHUNK))
 
 
 def test_which_subfolders_are_handed_out(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:

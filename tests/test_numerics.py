@@ -184,3 +184,24 @@ def test_check_reuses_the_inspection_while_nothing_that_decides_it_changed(tmp_p
         assert cache.fact(inspection_key(sys.executable, env, 2)) is None  # other thread settings: inspect again
     finally:
         cache.close()
+
+
+def test_a_record_whose_workers_digest_the_data_inspects_only_when_the_cache_cannot_answer(tmp_path: Path) -> None:
+    from holotype.capture.digest_cache import DigestCache
+    from holotype.capture.environment import capture_environment
+    from holotype.capture.numerics import inspection_key, start_unless_known
+
+    pytest.importorskip("numpy")
+    env = capture_environment(sys.executable, Path.cwd())
+    cache = DigestCache(tmp_path / "c.sqlite3")
+    try:
+        run = start_unless_known(sys.executable, env, 1, cache)
+        assert run is not None  # nothing remembered: inspected now
+        run.stop()
+        cache.remember(inspection_key(sys.executable, env, 1), "{}")
+        assert start_unless_known(sys.executable, env, 1, cache) is None
+        other = start_unless_known(sys.executable, env, 2, cache)
+        assert other is not None  # other thread settings: not the same answer
+        other.stop()
+    finally:
+        cache.close()

@@ -50,6 +50,9 @@ class DigestCache:
         self.path.parent.mkdir(parents=True, exist_ok=True)
         conn = sqlite3.connect(self.path, timeout=30, isolation_level=None, check_same_thread=False)
         conn.execute("PRAGMA journal_mode=WAL")
+        # no fsync per transaction: in WAL mode SQLite documents this as safe from corruption, and a power cut
+        # can only lose the last digests remembered (the cache is an optimisation; they are hashed again)
+        conn.execute("PRAGMA synchronous=NORMAL")
         conn.execute(_SCHEMA)
         conn.execute(_FACTS)
         conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")

@@ -33,7 +33,7 @@ from dataclasses import dataclass, field
 from typing import IO, TYPE_CHECKING, Any
 
 from holotype.capture.folder_stamps import Row, plain_rows, rows_stamp
-from holotype.capture.hashing import CHUNK, Identity, Unstable, digest_walked
+from holotype.capture.hashing import CHUNK, Identity, Unstable, digest_rows
 from holotype.capture.walk import ProjectWalker
 from holotype.manifests import MAGIC, choose_folders, file_entry, folder_of
 from holotype.records import FolderRecord
@@ -61,27 +61,27 @@ class Answer:
 
 def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None, buf: bytearray) -> Answer | None:
     """Everything `record` keeps of the files below `rel`; None when the quick way cannot take them."""
-    rows = plain_rows(walker, rel)
-    if rows is None:
-        return None
-    answer = Answer()
-    known = cache.lookup([(r[1], r[2], r[3], r[4], r[5]) for r in rows]) if cache is not None else {}
-    root = str(walker.root)
-    digests: list[str] = []
-    sizes: list[int] = []
+    found: list[tuple[Row, str, int]] = []
     fresh: list[tuple[Identity, str]] = []
-    for row in rows:
-        ident = (row[1], row[2], row[3], row[4], row[5])
-        digest = known.get(ident)
-        if digest is None:
-            try:
-                digest, ident = digest_walked(os.path.join(root, row[0]), ident, buf)
-            except (OSError, Unstable):
-                return None
-            fresh.append((ident, digest))
-            answer.bytes_hashed += ident[2]
-        digests.append(digest)
-        sizes.append(ident[2])
+
+    def visit(where: int | str, cut: int, rows: list[Row]) -> None:
+        """Hash one folder's files while it is open (a file is opened relative to it)."""
+        known = cache.lookup([(r[1], r[2], r[3], r[4], r[5]) for r in rows]) if cache is not None else {}
+        digests, sizes, hashed = digest_rows(where, cut, rows, known, buf)
+        found.extend(zip(rows, digests, sizes))
+        fresh.extend(hashed)
+
+    try:
+        if plain_rows(walker, rel, visit) is None:
+            return None
+    except (OSError, Unstable):
+        return None
+    found.sort()  # by path (the paths differ)
+    rows = [row for row, _, _ in found]
+    digests = [digest for _, digest, _ in found]
+    sizes = [size for _, _, size in found]
+    answer = Answer()
+    answer.bytes_hashed = sum(ident[2] for ident, _ in fresh)
     answer.hashed, answer.hits = len(fresh), len(rows) - len(fresh)
     base = rel.strip("/")
     chosen = {f for f in choose_folders(r[0] for r in rows) if f == base or f.startswith(base + "/")}

@@ -18,6 +18,7 @@ import json
 import os
 import sys
 from array import array
+from collections.abc import Callable
 from itertools import chain
 from pathlib import Path
 from typing import TYPE_CHECKING
@@ -56,50 +57,74 @@ def stamp(files: list[ProjectFile]) -> str:
 Row = tuple[str, int, int, int, int, int]  # project-relative path, then device, inode, size, mtime_ns, ctime_ns
 
 
-def plain_rows(walker: ProjectWalker, rel: str) -> list[Row] | None:
-    """The files below folder `rel` as `walker.walk_below` finds them, as (path, identity) rows in path order,
+# a folder is opened once and its entries stat-ed and opened relative to it (the kernel then resolves one name
+# per file, not the whole path); where os.scandir takes no descriptor (Windows), by path
+_BY_DESCRIPTOR = os.scandir in os.supports_fd and os.open in os.supports_dir_fd
+_FOLDER_FLAGS = os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0)
+Visit = Callable[[int | str, int, list[Row]], None]
+
+
+def plain_rows(walker: ProjectWalker, rel: str, visit: Visit | None = None) -> list[Row] | None:
+    """The files below folder `rel` as `walker.walk_below` finds them, as (path, identity) rows (in path order
+    unless `visit` is given),
     from a stat and one small tuple per file. What it leaves out and where it goes down are the walk's own
-    rules (`leaves_out`, `enters`).
+    rules (`leaves_out`, `enters`). `visit` is given each folder's rows while the folder is open: its
+    descriptor (or path), how many leading characters of a row's path name the folder, and the rows.
 
     None when the folder holds anything but regular files and folders with plain (ASCII) names: a link, a
-    name to check, an entry that cannot be stat-ed. The caller then takes the walk's way."""
+    name to check, an entry that cannot be stat-ed, a folder that cannot be opened below the first. The
+    caller then takes the walk's way."""
     plain = rel.strip("/") or "."
     if walker.excludes and plain != "." and is_excluded(plain, walker.excludes):
         return []
     leaves_out = walker.leaves_out if walker.excludes or walker.outputs else None
     enters = walker.enters
     rows: list[Row] = []
-    add = rows.append
     start = os.path.join(walker.root, rel)
     stack = [(start, "" if plain == "." else plain + "/")]
     while stack:
         current, prefix = stack.pop()
         try:
-            with os.scandir(current) as it:
-                entries = list(it)
+            # below the first folder a link is refused (the walk saw a folder there a moment ago)
+            where: int | str = os.open(current, _FOLDER_FLAGS | (
+                getattr(os, "O_NOFOLLOW", 0) if current != start else 0)) if _BY_DESCRIPTOR else current
         except OSError:
-            if current == start:
-                return None
-            continue  # as the walk: nothing inside an unreadable folder can be listed
-        for entry in entries:
-            name = entry.name
-            path = prefix + name
-            if leaves_out is not None and leaves_out(path, name):
-                continue
-            if not name.isascii():
-                return None
+            return None
+        try:
             try:
-                if entry.is_file(follow_symlinks=False):
-                    st = entry.stat(follow_symlinks=False)
-                    add((path, st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
-                elif entry.is_symlink():
-                    return None
-                elif entry.is_dir(follow_symlinks=False):
-                    if enters(name, entry.path):
-                        stack.append((entry.path, path + "/"))
+                with os.scandir(where) as it:
+                    entries = list(it)
             except OSError:
                 return None
-    rows.sort()  # the paths differ, so by path
+            here: list[Row] = []
+            add = here.append
+            for entry in entries:
+                name = entry.name
+                path = prefix + name
+                if leaves_out is not None and leaves_out(path, name):
+                    continue
+                if not name.isascii():
+                    return None
+                try:
+                    if entry.is_file(follow_symlinks=False):
+                        st = entry.stat(follow_symlinks=False)
+                        add((path, st.st_dev, st.st_ino, st.st_size, st.st_mtime_ns, st.st_ctime_ns))
+                    elif entry.is_symlink():
+                        return None
+                    elif entry.is_dir(follow_symlinks=False):
+                        full = os.path.join(current, name)
+                        if enters(name, full):
+                            stack.append((full, path + "/"))
+                except OSError:
+                    return None
+            if visit is not None and here:
+                visit(where, len(prefix), here)
+            rows.extend(here)
+        finally:
+            if isinstance(where, int):
+                os.close(where)
+    if visit is None:
+        rows.sort()  # the paths differ, so by path
     return rows
 
 

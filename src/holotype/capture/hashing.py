@@ -17,7 +17,7 @@ import sys
 import threading
 import time
 from array import array
-from collections.abc import Callable, Iterable
+from collections.abc import Callable, Iterable, Sequence
 from typing import BinaryIO, Protocol
 
 RACY_SECONDS = 2.0  # a file changed this recently may still share its timestamps with its next write
@@ -111,13 +111,15 @@ def _read_into(fd: int, view: memoryview) -> int:
 _READV = hasattr(os, "readv")
 
 
-def digest_walked(path: str | bytes, before: Identity, buf: bytearray) -> tuple[str, Identity]:
+def digest_walked(path: str | bytes, before: Identity, buf: bytearray,
+                  dir_fd: int | None = None) -> tuple[str, Identity]:
     """`hash_stable` for a file the walk has just stat-ed, with the fewest system calls: open, one read into
     `buf` (a file smaller than it), fstat, close. As `sha256_file`, it opens without following a link and
-    refuses (OSError) what is not a regular file; Unstable when the file kept changing while it was read."""
+    refuses (OSError) what is not a regular file; Unstable when the file kept changing while it was read.
+    With `dir_fd`, `path` is relative to that open folder."""
     view = memoryview(buf)
     for _ in range(2):
-        fd = os.open(path, _OPEN_FLAGS)
+        fd = os.open(path, _OPEN_FLAGS, dir_fd=dir_fd)
         try:
             size = before[2]
             n = -1
@@ -143,6 +145,46 @@ def digest_walked(path: str | bytes, before: Identity, buf: bytearray) -> tuple[
             return h.hexdigest(), after
         before = after
     raise Unstable()
+
+
+def digest_rows(where: int | str, cut: int, rows: Sequence[tuple[str, int, int, int, int, int]],
+                known: dict[Identity, str], buf: bytearray) -> tuple[list[str], list[int], list[tuple[Identity, str]]]:
+    """`digest_walked` for the files of one folder the walk has just stat-ed, given as (path, identity) rows
+    whose paths name the folder in their first `cut` characters; `where` is the open folder's descriptor
+    (or its path). Returns their digests (from `known` where it has their identity) and sizes, and the
+    (identity, digest) pairs of those hashed now. The loop is written out for the common case, a small
+    file read at once and still as the walk saw it; anything else goes through `digest_walked`, whose
+    errors it raises."""
+    view = memoryview(buf)
+    limit = len(buf)
+    dir_fd = where if isinstance(where, int) else None
+    prefix = "" if dir_fd is not None else os.path.join(str(where), "")
+    digests: list[str] = []
+    sizes: list[int] = []
+    fresh: list[tuple[Identity, str]] = []
+    flags, sha256, fstat, close, is_regular = _OPEN_FLAGS, hashlib.sha256, os.fstat, os.close, stat.S_ISREG
+    for row in rows:
+        ident = (row[1], row[2], row[3], row[4], row[5])
+        digest = known.get(ident) if known else None
+        if digest is None:
+            size = row[3]
+            st = None
+            if size < limit:
+                fd = os.open(prefix + row[0][cut:], flags, dir_fd=dir_fd)
+                try:
+                    n = _read_into(fd, view[:size + 1])
+                    st = fstat(fd)
+                finally:
+                    close(fd)
+                if n == size and st.st_size == size and st.st_mtime_ns == row[4] and is_regular(st.st_mode):
+                    digest = sha256(view[:n]).hexdigest()
+                    ident = (st.st_dev, st.st_ino, size, st.st_mtime_ns, st.st_ctime_ns)
+            if digest is None:  # big, or not as the walk saw it
+                digest, ident = digest_walked(prefix + row[0][cut:], ident, buf, dir_fd)
+            fresh.append((ident, digest))
+        digests.append(digest)
+        sizes.append(ident[2])
+    return digests, sizes, fresh
 
 
 Outcome = tuple[str, Identity] | OSError | Unstable

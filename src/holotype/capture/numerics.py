@@ -110,6 +110,15 @@ def inspection_key(python: str, env: Environment, threads: int | None) -> str:
     return "numerics:" + hashlib.sha256(doc.encode()).hexdigest()
 
 
+def start_unless_known(python: str, env: Environment, threads: int | None,
+                       cache: DigestCache | None) -> ProbeRun | None:
+    """The inspection started now, unless the cache holds its answer or no numeric package is installed."""
+    if not any(d in env.packages for d in NUMERIC_PACKAGES) or (
+            cache is not None and cache.fact(inspection_key(python, env, threads)) is not None):
+        return None
+    return start_inspection(python, threads)
+
+
 def finish_inspection(run: ProbeRun | None, python: str, env: Environment, threads: int | None,
                       cache: DigestCache | None) -> NumericStack | None:
     """The numeric stack: from the cache when nothing that decides it changed, else from the inspection

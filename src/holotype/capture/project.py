@@ -19,7 +19,7 @@ from holotype.capture.folder_digests import APART_MIN_FILES, MAX_SPLIT_DEPTH, An
 from holotype.capture.folder_stamps import StampWorkers
 from holotype.capture.imports import scan_imports
 from holotype.capture.installed import digest_installed, with_installed
-from holotype.capture.numerics import finish_inspection, start_inspection
+from holotype.capture.numerics import finish_inspection, start_inspection, start_unless_known
 from holotype.capture.usage import declared_requirements, mark_used, truthful_requested, used_closure
 from holotype.capture.walk import GLOB_CHARS, ProjectFile, ProjectWalker, glob_regex, is_excluded
 from holotype.config import Config
@@ -309,14 +309,17 @@ def _capture(config: Config, python_override: str | None, full: bool, progress: 
     python, how = resolve_python(config.python, config.root, python_override)
     # runs while the files are walked and hashed (a check may have started it already: head_start.py)
     probe = head_start.probe_for(python, how, config.root) or ProbeRun(python, config.root, how)
-    # a first record starts the numeric inspection now, to run while files are hashed; a check usually finds
-    # its answer in the cache, and starts it only when it does not (importing NumPy and friends costs CPU)
-    inspection = start_inspection(python, config.threads) if numerics and listings else None
+    inspection = None
     stack = None
     try:
         cache = None if full else DigestCache()
         aside = SetAside.start(config, cache, recorded_folders) if not listings else None
         apart = Apart.start(config, cache) if listings else None
+        # a record starts the numeric inspection now, to run while files are hashed; a check usually finds
+        # its answer in the cache, and starts it only when it does not (importing NumPy and friends costs
+        # CPU). So does a record whose workers digest the data: they keep every core busy
+        if numerics and listings and apart is None:
+            inspection = start_inspection(python, config.threads)
         try:
             walker = aside.walker if aside else apart.walker if apart else None
             data_files, code_files, unmatched = tracked_files(config, walker)
@@ -338,6 +341,8 @@ def _capture(config: Config, python_override: str | None, full: bool, progress: 
                 data_files, unmatched, settled = aside.finish(data_files, unmatched)
             if apart is not None:
                 env = environment()  # while the workers digest their subfolders
+                if numerics:
+                    inspection = start_unless_known(python, env, config.threads, cache)
                 data_files, unmatched, answers = apart.finish(data_files, unmatched, progress)
             data = fingerprint_data(data_files, str(config.root), cache=cache, recorded=recorded_folders,
                                     progress=progress, listings=listings, settled=settled, digested=answers)
