@@ -27,6 +27,9 @@ from holotype.records import FileRecord, FolderRecord
 
 FOLDER_THRESHOLD = 1000  # files; below it a folder's files are listed one by one in the lock
 MAGIC = b"holotype listing 1\n"
+# gzip level of a listing object in the store: mostly hex digests, which level 6 packs only 4% smaller, at
+# two and a half times the time (100,000 files: 10 MB of listing)
+LISTING_LEVEL = 1
 MAX_LISTING_BYTES = 1 << 31  # 2 GiB of listing is some 10 million files: more is not a listing holotype wrote
 
 

@@ -86,14 +86,14 @@ class BaselineStore:
         for folder in (self.folder.parent, self.folder, path.parent):
             refuse_link(folder, "baselines")
 
-    def put(self, data: bytes) -> str:
-        """Store `data` (if not already there) and return its SHA-256."""
+    def put(self, data: bytes, level: int = 6) -> str:
+        """Store `data` (if not already there, compressed at gzip `level`) and return its SHA-256."""
         digest = hashlib.sha256(data).hexdigest()
         target = self.path_for(digest)
         self._check_links(target)
         if not target.exists():
             # mtime=0 keeps the compressed bytes identical for identical outputs
-            write_atomic(target, gzip.compress(data, compresslevel=6, mtime=0))
+            write_atomic(target, gzip.compress(data, compresslevel=level, mtime=0))
         return digest
 
     def get(self, digest: str, size: int | None = None) -> bytes:

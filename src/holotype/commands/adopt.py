@@ -15,6 +15,7 @@ from holotype.errors import HolotypeError, InputError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
+from holotype.manifests import LISTING_LEVEL
 from holotype.records import AnalysisRecord, Change, HistoryEntry, OutputRecord, inputs_digest
 from holotype.safe_files import inside, read_regular
 from holotype.seeds import derive_seed
@@ -79,7 +80,7 @@ def adopt_outputs(root: Path, names: list[str] | None, reason: str) -> Judgement
         for data in taken:
             store.baselines.put(data)
         for listing in capture.data.listings.values():
-            store.baselines.put(listing)
+            store.baselines.put(listing, LISTING_LEVEL)
         changed = compare_data(store.baselines, lock.data, lock.data_folders, capture.data.records,
                                capture.data.folders, capture.data.every_folder_file())
         for f in changed + compare_file_sets("code", lock.code, capture.code.records):

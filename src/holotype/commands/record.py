@@ -20,6 +20,7 @@ from holotype.errors import ConfigError, HolotypeError, LockfileError
 from holotype.findings import Finding, Judgement
 from holotype.findings.policy import apply_policy
 from holotype.lockfile import LOCK_NAME, read_lock, write_lock
+from holotype.manifests import LISTING_LEVEL
 from holotype.records import (
     AnalysisRecord,
     Change,
@@ -142,7 +143,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
                              notes=("nothing written: the lock and baselines are unchanged",))
         # each object is compressed and written with its own fsync: a few threads overlap those waits
         with ThreadPoolExecutor(max_workers=4, thread_name_prefix="holotype-store") as pool:
-            list(pool.map(store.baselines.put, [*pending, *capture.data.listings.values()]))
+            list(pool.map(store.baselines.put, pending))
+            list(pool.map(lambda raw: store.baselines.put(raw, LISTING_LEVEL), capture.data.listings.values()))
         seed_note = None
         if new_seed and config.source is not None:  # written only now that the record succeeded
             add_seed(config.source, config.seed)
