@@ -326,3 +326,42 @@ def test_terminal_breakdown_names_the_columns_that_moved(tmp_path: Path, monkeyp
     assert "b.csv: where the values moved" in result.out
     [row] = [line for line in result.out.splitlines() if line.startswith("sd ")]
     assert "1/2" in row and "row 1, column sd" in row and "0.2" in row  # relative error 0.05/0.25
+
+
+def test_chunks_parsed_ahead_arrive_in_order_and_a_parse_error_reaches_the_judging() -> None:
+    import threading
+
+    from holotype.compare.formats.table import AHEAD, _Ahead
+    from holotype.errors import UnreadableOutput
+
+    with _Ahead(iter(range(10))) as ahead:
+        got = [ahead.next() for _ in range(10)]
+        assert got == list(range(10)) and ahead.next() is None and ahead.next() is None  # the end stays the end
+
+    def broken() -> object:
+        yield 1
+        raise UnreadableOutput("not a readable table: ragged row", "x.csv")
+
+    with _Ahead(broken()) as ahead:  # type: ignore[arg-type]
+        assert ahead.next() == 1
+        with pytest.raises(UnreadableOutput):
+            ahead.next()
+
+    # the judging stops early (a problem in the other file): the parse thread stops too, however far ahead
+    before = threading.active_count()
+    with pytest.raises(RuntimeError):
+        with _Ahead(iter(range(10 ** 9))) as ahead:
+            ahead.next()
+            assert ahead.queue.qsize() <= AHEAD
+            raise RuntimeError("stop")
+    assert not ahead.thread.is_alive() and threading.active_count() == before
+
+
+def test_a_ragged_row_deep_in_a_big_table_is_exit_2(tmp_path: Path) -> None:
+    from holotype.compare.formats.table import CHUNK_ROWS
+
+    rows = "".join(f"{i},{i * 0.5}\n" for i in range(3 * CHUNK_ROWS))
+    write(tmp_path / "e.csv", "a,b\n" + rows)
+    write(tmp_path / "a.csv", "a,b\n" + rows + "1,2,3,4\n" + rows)
+    result = run_cli("compare", tmp_path / "e.csv", tmp_path / "a.csv")
+    assert result.code == 2 and "a.csv" in result.err and "Traceback" not in result.err, result.err

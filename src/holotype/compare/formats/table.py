@@ -7,8 +7,9 @@ float() in the tests), handles quoting and dialects, and keeps memory bounded by
 from __future__ import annotations
 
 import csv
+import queue
+import threading
 from collections.abc import Iterator
-from concurrent.futures import ThreadPoolExecutor
 from typing import Any
 
 from holotype.compare.formats import register
@@ -20,6 +21,7 @@ from holotype.phrasing import listed
 from holotype.tolerance import RuleBook
 
 CHUNK_ROWS = 50_000
+AHEAD = 2  # chunks parsed ahead per file: memory holds at most this many more per file
 
 
 def sniff_dialect(src: Source) -> tuple[str, str]:
@@ -68,6 +70,60 @@ def _chunks(src: Source, delimiter: str, quote: str) -> Iterator[Any]:
         reader.close()
 
 
+class _Ahead:
+    """Chunks of one file parsed on a thread of their own, at most `AHEAD` ahead of the judging (pandas'
+    tokenizer runs without the GIL, so both files are parsed at once while chunks are judged)."""
+
+    def __init__(self, chunks: Iterator[Any]) -> None:
+        self.chunks = chunks
+        self.queue: queue.Queue[tuple[bool, Any]] = queue.Queue(maxsize=AHEAD)
+        self.stopped = threading.Event()
+        self.thread = threading.Thread(target=self._run, name="holotype-csv", daemon=True)
+
+    def __enter__(self) -> _Ahead:
+        self.thread.start()
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.stopped.set()
+        while self.thread.is_alive():  # let a parse blocked on a full queue see the stop
+            try:
+                self.queue.get_nowait()
+            except queue.Empty:
+                pass
+            self.thread.join(timeout=0.05)
+        close = getattr(self.chunks, "close", None)
+        if close is not None:
+            close()
+
+    def _put(self, item: tuple[bool, Any]) -> bool:
+        while not self.stopped.is_set():
+            try:
+                self.queue.put(item, timeout=0.1)
+                return True
+            except queue.Full:
+                continue
+        return False
+
+    def _run(self) -> None:
+        try:
+            for chunk in self.chunks:
+                if not self._put((True, chunk)):
+                    return
+            self._put((True, None))
+        except BaseException as exc:  # noqa: BLE001 - handed to the judging thread, which raises it
+            self._put((False, exc))
+
+    def next(self) -> Any:
+        """The next chunk, None at the end; what the parse raised is raised here."""
+        ok, item = self.queue.get()
+        if not ok:
+            raise item
+        if item is None:
+            self.queue.put((True, None))  # stays at the end
+        return item
+
+
 def _row_where(offset: int, col: str) -> Any:
     return lambda i: f"row {offset + i + 1}, column {col}"
 
@@ -87,17 +143,12 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
     judges: dict[str, ColumnJudge] = {}
     e_rows = a_rows = 0
     compared: list[str] = []
-    e_iter = _chunks(expected, e_delim, e_quote)
-    a_iter = _chunks(actual, a_delim, a_quote)
-    with ThreadPoolExecutor(max_workers=2, thread_name_prefix="holotype-csv") as pool:
+    with _Ahead(_chunks(expected, e_delim, e_quote)) as e_iter, _Ahead(_chunks(actual, a_delim, a_quote)) as a_iter:
         first = True
-        fe, fa = pool.submit(next, e_iter, None), pool.submit(next, a_iter, None)
         while True:
-            e_chunk, a_chunk = fe.result(), fa.result()
+            e_chunk, a_chunk = e_iter.next(), a_iter.next()
             if e_chunk is None and a_chunk is None:
                 break
-            # the next chunks are parsed while these are judged (two chunks per file in memory at most)
-            fe, fa = pool.submit(next, e_iter, None), pool.submit(next, a_iter, None)
             if first:
                 head: Any = e_chunk if e_chunk is not None else a_chunk
                 other: Any = a_chunk if a_chunk is not None else e_chunk
@@ -110,8 +161,8 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
             n = min(ne, na)
             if n:
                 for c in compared:
-                    ev = e_chunk[c].to_numpy()[:n]  # type: ignore[index]
-                    av = a_chunk[c].to_numpy()[:n]  # type: ignore[index]
+                    ev = e_chunk[c].to_numpy()[:n]
+                    av = a_chunk[c].to_numpy()[:n]
                     judges[c].feed(ev, av, _row_where(e_rows, c))
             e_rows += ne
             a_rows += na
