@@ -78,11 +78,12 @@ class Tally:
             if infinite.any():
                 self.decades["inf"] = self.decades.get("inf", 0) + int(infinite.sum())
                 nonzero = nonzero[~infinite]
-            with np.errstate(divide="ignore"):
-                exps = np.floor(np.log10(nonzero)).astype(np.int64)
+            with np.errstate(divide="ignore"):  # in place: `nonzero` is a copy, and fresh memory costs
+                np.floor(np.log10(nonzero, out=nonzero), out=nonzero)
+            exps = nonzero.astype(np.int64)
             if exps.size:
                 low = int(exps.min())
-                counts = np.bincount(exps - low)  # a few hundred decades at most: counting beats sorting
+                counts = np.bincount(np.subtract(exps, low, out=exps))  # a few hundred decades: counting beats sorting
                 for offset in np.flatnonzero(counts).tolist():
                     label = f"1e{low + offset}"
                     self.decades[label] = self.decades.get(label, 0) + int(counts[offset])
