@@ -236,3 +236,32 @@ def test_a_pattern_whose_subfolders_hold_no_file_still_matches_nothing(tmp_path:
         result = run_cli("record", "--no-run", "-C", root)
         outcomes.append((result.code, result.err.replace(str(root), "ROOT")))
     assert outcomes[0] == outcomes[1] and outcomes[0][0] == 2 and "data pattern 'data' matches no file" in outcomes[0][1]
+
+
+def test_the_workers_a_record_starts_ahead_are_used_only_for_the_same_request(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from holotype.capture import head_start
+
+    root = tmp_path / "proj"
+    build(root)
+    monkeypatch.setattr(project, "APART_MIN_FILES", 0)
+    adopted: list[object] = []
+    real = head_start.take_ahead
+    monkeypatch.setattr(head_start, "take_ahead", lambda *a: adopted.append(real(*a)) or adopted[-1])
+    first = recorded(root)
+    assert len(adopted) == 1 and adopted[0] is not None  # started while holotype loaded, and taken
+    # started ahead for other rules (the configuration changed in between): stopped, not used
+    stopped: list[object] = []
+    real_begin = project.begin_digests
+
+    def begin_then_change(project_folder: Path) -> None:
+        real_begin(project_folder)
+        stopped.extend(head_start._ahead)
+        text = (root / "holotype.toml").read_text()
+        (root / "holotype.toml").write_text(text.replace('"data/skipme"', '"data/skipme", "data/a/deeper"'))
+
+    monkeypatch.setattr(project, "begin_digests", begin_then_change)
+    second = recorded(root)
+    assert adopted[-1] is None and stopped and all(not p.procs for p in stopped)  # type: ignore[attr-defined]
+    assert b"data/a/deeper/" not in second[2]["data/a"] and b"data/a/deeper/" in first[2]["data/a"]
+    assert not head_start._ahead  # nothing left running after the command

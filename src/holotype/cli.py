@@ -314,15 +314,23 @@ def _analysis_panel(session: Session) -> AnalysisPanel | None:
 @_parallel
 def record(session: Session, no_run: bool, python: str | None, jobs: int | None, cluster: str | None) -> Judgement:
     """Capture interpreter, packages, data, code and seeds; run the analyses; write holotype.lock."""
-    from holotype.commands.record import record_project
+    from holotype.capture import head_start
+    from holotype.capture.project import begin_digests
 
-    panel = _analysis_panel(session)
+    panel = None
     try:
+        # the probe, and the workers that digest big data folders, start while the rest of holotype loads
+        head_start.begin_probe(session.project, python)
+        begin_digests(session.project)
+        from holotype.commands.record import record_project
+
+        panel = _analysis_panel(session)
         return record_project(session.project, run=not no_run, python=python, hash_progress=_hash_bar(session),
                               run_progress=panel, jobs=jobs, cluster=cluster)
     finally:
         if panel is not None:
             panel.close()
+        head_start.finish()
 
 
 @findings_command("check", python=True)

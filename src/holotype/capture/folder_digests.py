@@ -148,6 +148,13 @@ class ApartResult:
     declined: list[str] = field(default_factory=list)
 
 
+def request_for(walker: ProjectWalker, cache: Path | None) -> dict[str, Any]:
+    """What a worker is told before its subfolders: the walk's rules, and the digest cache."""
+    return {"root": os.path.realpath(walker.root), "excludes": list(walker.excludes),
+            "allow_outside": walker.allow_outside, "outputs": sorted(walker.outputs),
+            "cache": None if cache is None else str(cache)}
+
+
 class FolderDigesters:
     """Worker processes digesting `subfolders` while this process does other work; `result()` waits."""
 
@@ -161,9 +168,7 @@ class FolderDigesters:
         self.bytes_done = 0
         self.lock = threading.Lock()
         self.procs: list[subprocess.Popen[bytes]] = []
-        request = {"root": os.path.realpath(walker.root), "excludes": list(walker.excludes),
-                   "allow_outside": walker.allow_outside, "outputs": sorted(walker.outputs),
-                   "cache": None if cache is None else str(cache)}
+        self.request = request_for(walker, cache)
         argv, env = head_start.worker_command("holotype.capture.folder_digests")
         import subprocess
 
@@ -173,11 +178,21 @@ class FolderDigesters:
                                                    stderr=subprocess.DEVNULL, env=env))
         except OSError:
             pass  # those that started do the work; with none, this process does it all
-        self.threads = [threading.Thread(target=self._feed, args=(proc, json.dumps(request).encode() + b"\n"),
+        self.threads = [threading.Thread(target=self._feed, args=(proc, json.dumps(self.request).encode() + b"\n"),
                                          name=f"holotype-digest-{k}", daemon=True)
                         for k, proc in enumerate(self.procs)]
         for t in self.threads:
             t.start()
+
+    @classmethod
+    def start(cls, walker: ProjectWalker, subfolders: list[str], cache: Path | None) -> FolderDigesters:
+        """Workers for these subfolders: those started ahead for exactly the same (head_start.py), or new."""
+        from holotype.capture import head_start
+
+        request = request_for(walker, cache)
+        ahead = head_start.take_ahead(lambda started: isinstance(started, FolderDigesters) and
+                                      started.request == request and started.subfolders == subfolders)
+        return ahead if ahead is not None else cls(walker, subfolders, cache)
 
     def _feed(self, proc: subprocess.Popen[bytes], request: bytes) -> None:
         """Give the worker one subfolder at a time, and keep its answers."""

@@ -1,5 +1,5 @@
-"""A head start for `check`: the interpreter probe and the stamp workers begin before the command has loaded
-the rest of holotype or read the lock.
+"""A head start for `check` and `record`: the interpreter probe and the workers begin before the command
+has loaded the rest of holotype or read the lock.
 
 The probe (environment.py) depends only on the configuration, so it starts as soon as the project's
 configuration is read, for the interpreter that configuration names; capture_project adopts it when it
@@ -14,6 +14,10 @@ the noted requests when those files are unchanged; StampWorkers adopts them only
 builds itself are exactly the noted ones, and stops them otherwise. So a stale note costs a little work
 and never an answer: a worker's answer depends only on its request and the files it stats.
 
+`record` starts the probe the same way, and its digest workers (folder_digests.py) as soon as the
+configuration names the data subfolders to hand out; Apart adopts them only for exactly the same request
+(the walk's rules, the cache) and subfolders, and stops them otherwise.
+
 Only holotype's own worker module is ever started from a note (never a program the note names), and a
 note naming another project folder is ignored. HOLOTYPE_NO_HEAD_START=1 turns the workers' head start off
 (to measure what it saves).
@@ -26,6 +30,7 @@ import json
 import os
 import subprocess
 import sys
+from collections.abc import Callable
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
@@ -36,6 +41,7 @@ NOTE_LIMIT = 1 << 20  # a note is a few kilobytes; anything bigger is not one
 _WATCHED = ("holotype.lock", "holotype.toml", "pyproject.toml")
 _started: dict[str, tuple[list[dict[str, Any]], list[subprocess.Popen[bytes]]]] = {}
 _probes: dict[tuple[str, str, str], ProbeRun] = {}  # (interpreter, how it was chosen, project folder)
+_ahead: list[Any] = []  # a record's digest workers, started as soon as its configuration was read
 
 
 def _note_path(root: str) -> Path:
@@ -185,11 +191,28 @@ def remember(root: str, requests: list[dict[str, Any]]) -> None:
         pass  # an optimisation only
 
 
+def keep_ahead(started: Any) -> None:
+    """Keep workers started ahead (anything with a `stop()`) for the command to take, or `finish` to stop."""
+    _ahead.append(started)
+
+
+def take_ahead(wanted: Callable[[Any], bool]) -> Any:
+    """The workers kept ahead that are `wanted`, or None; any others are stopped."""
+    while _ahead:
+        started = _ahead.pop()
+        if wanted(started):
+            return started
+        started.stop()
+    return None
+
+
 def finish() -> None:
     """Stop what was started ahead and not taken: workers (the command found no folder to set aside, or
     stopped early on an error) and probes."""
     while _started:
         stop(_started.popitem()[1][1])
+    while _ahead:
+        _ahead.pop().stop()
     while _probes:
         probe = _probes.popitem()[1]
         if probe.proc.poll() is None:

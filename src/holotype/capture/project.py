@@ -146,6 +146,25 @@ def subfolders_apart(config: Config) -> list[str]:
     return kept if len(kept) > 1 and _enough_files(config.root, kept, APART_MIN_FILES) else []
 
 
+def begin_digests(project: Path) -> None:
+    """Start a record's digest workers (folder_digests.py) for the data subfolders its configuration names,
+    while the rest of holotype loads (head_start.py). Any problem is left to the command, which meets it
+    again."""
+    if os.environ.get("HOLOTYPE_NO_HEAD_START"):
+        return
+    from holotype.capture.digest_cache import default_cache_path
+    from holotype.config import load_config
+    from holotype.errors import HolotypeError
+
+    try:
+        config = load_config(project)
+        subfolders = subfolders_apart(config)
+        if subfolders:
+            head_start.keep_ahead(FolderDigesters(project_walker(config), subfolders, default_cache_path()))
+    except (HolotypeError, OSError):
+        return
+
+
 def project_walker(config: Config, set_aside: frozenset[str] = frozenset()) -> ProjectWalker:
     outputs = frozenset(out for a in config.analyses for out in a.outputs)
     return ProjectWalker(config.root, config.exclude, config.allow_outside, config.source, outputs, set_aside)
@@ -243,7 +262,7 @@ class Apart:
     def __init__(self, config: Config, subfolders: list[str], cache: DigestCache) -> None:
         self.config = config
         self.walker = project_walker(config, frozenset(subfolders))
-        self.digesters = FolderDigesters(project_walker(config), subfolders, cache.path if cache.conn else None)
+        self.digesters = FolderDigesters.start(project_walker(config), subfolders, cache.path if cache.conn else None)
 
     @classmethod
     def start(cls, config: Config, cache: DigestCache | None) -> Apart | None:
