@@ -265,3 +265,16 @@ def test_the_workers_a_record_starts_ahead_are_used_only_for_the_same_request(
     assert adopted[-1] is None and stopped and all(not p.procs for p in stopped)  # type: ignore[attr-defined]
     assert b"data/a/deeper/" not in second[2]["data/a"] and b"data/a/deeper/" in first[2]["data/a"]
     assert not head_start._ahead  # nothing left running after the command
+
+
+def test_a_subfolder_that_is_a_link_now_is_declined(tmp_path: Path) -> None:
+    from holotype.capture.folder_stamps import plain_rows
+    from holotype.capture.walk import ProjectWalker
+
+    outside = tmp_path / "outside"
+    fill(outside, 3)
+    (tmp_path / "proj" / "data").mkdir(parents=True)
+    os.symlink(outside, tmp_path / "proj" / "data" / "a")  # swapped in after the subfolders were listed
+    walker = ProjectWalker(tmp_path / "proj")
+    assert plain_rows(walker, "data/a") is None
+    assert folder_digests.digest_subfolder(walker, "data/a", None, bytearray(CHUNK)) is None

@@ -60,7 +60,7 @@ Row = tuple[str, int, int, int, int, int]  # project-relative path, then device,
 # a folder is opened once and its entries stat-ed and opened relative to it (the kernel then resolves one name
 # per file, not the whole path); where os.scandir takes no descriptor (Windows), by path
 _BY_DESCRIPTOR = os.scandir in os.supports_fd and os.open in os.supports_dir_fd
-_FOLDER_FLAGS = os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0)
+_FOLDER_FLAGS = os.O_RDONLY | getattr(os, "O_DIRECTORY", 0) | getattr(os, "O_CLOEXEC", 0) | getattr(os, "O_NOFOLLOW", 0)
 Visit = Callable[[int | str, int, list[Row]], None]
 
 
@@ -72,7 +72,7 @@ def plain_rows(walker: ProjectWalker, rel: str, visit: Visit | None = None) -> l
     descriptor (or path), how many leading characters of a row's path name the folder, and the rows.
 
     None when the folder holds anything but regular files and folders with plain (ASCII) names: a link, a
-    name to check, an entry that cannot be stat-ed, a folder that cannot be opened below the first. The
+    name to check, an entry that cannot be stat-ed, a folder that cannot be opened or is a link. The
     caller then takes the walk's way."""
     plain = rel.strip("/") or "."
     if walker.excludes and plain != "." and is_excluded(plain, walker.excludes):
@@ -85,9 +85,8 @@ def plain_rows(walker: ProjectWalker, rel: str, visit: Visit | None = None) -> l
     while stack:
         current, prefix = stack.pop()
         try:
-            # below the first folder a link is refused (the walk saw a folder there a moment ago)
-            where: int | str = os.open(current, _FOLDER_FLAGS | (
-                getattr(os, "O_NOFOLLOW", 0) if current != start else 0)) if _BY_DESCRIPTOR else current
+            # a folder that is a link now is refused (the walk decides what to do with it)
+            where: int | str = os.open(current, _FOLDER_FLAGS) if _BY_DESCRIPTOR else current
         except OSError:
             return None
         try:
