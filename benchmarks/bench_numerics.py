@@ -30,8 +30,9 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as cache:
         os.environ["HOLOTYPE_CACHE_DIR"] = cache
         capture_project(config)  # warm the file cache and the remembered inspection
-        plain = median_seconds(lambda: capture_project(config, numerics=False, full=True))
-        inspected = median_seconds(lambda: capture_project(config, numerics=True, full=True))
+        # as record captures: listings built, the inspection started before the files are hashed
+        plain = median_seconds(lambda: capture_project(config, numerics=False, full=True, listings=True))
+        inspected = median_seconds(lambda: capture_project(config, numerics=True, full=True, listings=True))
         print(f"record's capture (no cache): without the numeric stack {plain:.3f}s, with it {inspected:.3f}s: "
               f"+{inspected - plain:.3f}s (target <= +0.3 s: {'meets' if inspected - plain <= 0.3 else 'MISSES'})")
         warm_plain = median_seconds(lambda: capture_project(config, numerics=False))
