@@ -243,10 +243,9 @@ class FolderDigesters:
 
     def stop(self) -> None:
         """Stop the workers; what they did not answer is left for this process."""
-        for proc in self.procs:
-            if proc.poll() is None:
-                proc.kill()
-            proc.wait()
+        from holotype.capture import head_start
+
+        head_start.stop(self.procs)
         self.procs = []
 
 

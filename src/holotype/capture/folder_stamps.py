@@ -200,10 +200,9 @@ class StampWorkers:
             self.stop()
 
     def stop(self) -> None:
-        for proc in self.procs:
-            if proc.poll() is None:
-                proc.kill()
-            proc.wait()
+        from holotype.capture import head_start
+
+        head_start.stop(self.procs)
         self.procs = []
 
     def result(self) -> dict[str, tuple[str, int]]:

@@ -74,9 +74,9 @@ def folders_to_set_aside(config: Config, recorded: dict[str, FolderRecord]) -> l
     return out
 
 
-def _subfolders(walker: ProjectWalker, rel: str) -> tuple[list[str], bool] | None:
-    """The folders directly inside project-relative folder `rel` the walk would go into (those with plain
-    names; None when it holds another kind), and whether `rel` holds anything else."""
+def _subfolders(walker: ProjectWalker, rel: str) -> list[str] | None:
+    """The folders directly inside project-relative folder `rel` the walk would go into; None when one of
+    its entries has a name to check or cannot be looked at (the walk then takes it all)."""
     try:
         with os.scandir(os.path.join(walker.root, rel)) as it:
             entries = list(it)
@@ -84,7 +84,6 @@ def _subfolders(walker: ProjectWalker, rel: str) -> tuple[list[str], bool] | Non
         return None
     prefix = "" if rel == "." else rel + "/"
     out: list[str] = []
-    other = False
     for entry in entries:
         path = prefix + entry.name
         if walker.leaves_out(path, entry.name):
@@ -92,14 +91,11 @@ def _subfolders(walker: ProjectWalker, rel: str) -> tuple[list[str], bool] | Non
         if not entry.name.isascii():
             return None
         try:
-            if entry.is_dir(follow_symlinks=False):
-                if walker.enters(entry.name, entry.path):
-                    out.append(path)
-                continue
+            if entry.is_dir(follow_symlinks=False) and walker.enters(entry.name, entry.path):
+                out.append(path)
         except OSError:
             return None
-        other = True
-    return sorted(out), other
+    return sorted(out)
 
 
 def _enough_files(root: Path, folders: list[str], wanted: int) -> bool:
@@ -137,10 +133,10 @@ def subfolders_apart(config: Config) -> list[str]:
             continue
         listed = _subfolders(walker, pattern)
         depth = 0
-        while listed is not None and len(listed[0]) == 1 and depth < MAX_SPLIT_DEPTH:
+        while listed is not None and len(listed) == 1 and depth < MAX_SPLIT_DEPTH:
             depth += 1
-            listed = _subfolders(walker, listed[0][0])
-        found.update(f for f in (listed[0] if listed else ()) if not any(_overlaps(p, f) for p in code))
+            listed = _subfolders(walker, listed[0])
+        found.update(f for f in listed or () if not any(_overlaps(p, f) for p in code))
     ordered = sorted(found)
     kept = [f for i, f in enumerate(ordered) if not any(f.startswith(g + "/") for g in ordered[:i])]
     return kept if len(kept) > 1 and _enough_files(config.root, kept, APART_MIN_FILES) else []
