@@ -365,3 +365,185 @@ def test_a_ragged_row_deep_in_a_big_table_is_exit_2(tmp_path: Path) -> None:
     write(tmp_path / "a.csv", "a,b\n" + rows + "1,2,3,4\n" + rows)
     result = run_cli("compare", tmp_path / "e.csv", tmp_path / "a.csv")
     assert result.code == 2 and "a.csv" in result.err and "Traceback" not in result.err, result.err
+
+
+def _mixed_wide_table(seed: int, shift: bool) -> bytes:
+    """A table of 90 columns of every kind a CSV holds; `shift` moves some values as a re-run would."""
+    rng = np.random.default_rng(seed)
+    rows = 23
+    cols: dict[str, list[str]] = {}
+    for j in range(30):  # floats: exact, last-bit noise, real changes, zeros, NaN and inf
+        base = rng.normal(size=rows) * 10.0 ** (j % 7 - 3)
+        if j % 5 == 0:
+            base[::4] = 0.0
+        if j % 6 == 1:
+            base[3] = math.nan
+        if j % 6 == 2:
+            base[5] = math.inf
+        if shift and j % 3 == 1:
+            base = np.array([math.nextafter(v, math.inf) if math.isfinite(v) else v for v in base])  # one ULP
+        if shift and j % 4 == 2:
+            base[7 + j % 5] *= 1.001
+        cols[f"f{j}"] = [repr(float(v)) for v in base]
+    for j in range(10):  # integers, one changed
+        vals = rng.integers(-50, 50, size=rows)
+        if shift and j == 3:
+            vals[2] += 1
+        cols[f"i{j}"] = [str(int(v)) for v in vals]
+    for j in range(10):  # sign-free loadings: flipped as a whole on some, flipped value by value on one
+        vals = rng.normal(size=rows)
+        if shift and j % 2:
+            vals = -vals
+        if shift and j == 4:
+            vals[1] = -vals[1]
+        cols[f"pc{j}"] = [repr(float(v)) for v in vals]
+    for j in range(10):  # text, missing cells and numbers inside text
+        vals = [f"lake {k}" if k % 3 else "" for k in range(rows)]
+        if shift and j == 2:
+            vals[4] = "lake changed"
+        cols[f"t{j}"] = vals
+        cols[f"n{j}"] = [f"{k * 0.5:.3f} ({k / 7:.4f})" if not (shift and j == 1 and k == 6) else "9.000 (1.0000)"
+                         for k in range(rows)]
+    for j in range(5):  # booleans, and a column numeric on one side only
+        cols[f"b{j}"] = ["True" if (k + j) % 2 else "False" for k in range(rows)]
+        cols[f"m{j}"] = [str(k) if not (shift and k == 9) else "n/a" for k in range(rows)]
+    for j in range(5):  # columns whose names look like pandas' renamed duplicates
+        cols[f"d.{j}"] = [str(k * j) for k in range(rows)]
+    names = list(cols)
+    lines = [",".join(names)] + [",".join(cols[c][k] for c in names) for k in range(rows)]
+    return ("\n".join(lines) + "\n").encode()
+
+
+def _tally_state(outcome: object) -> list[dict[str, object]]:
+    return [dict(vars(t)) for t in outcome.tallies]  # type: ignore[attr-defined]
+
+
+def test_wide_tables_judged_in_blocks_give_the_same_figures_as_column_by_column(
+        monkeypatch: pytest.MonkeyPatch) -> None:
+    from holotype.compare.formats import table
+    from holotype.compare.source import Source
+    from holotype.tolerance import Rule, RuleBook, Tolerance
+
+    rules = RuleBook(default=Tolerance(rtol=1e-9, atol=1e-12),
+                     rules=(Rule("t.csv:pc*", {"sign_free": True}), Rule("t.csv:f1*", {"ulps": 2}),
+                            Rule("t.csv:i*", {"atol": 0.5})))
+    expected = Source.from_bytes(_mixed_wide_table(7, False), "t.csv", "recorded")
+    actual = Source.from_bytes(_mixed_wide_table(7, True), "t.csv", "found")
+
+    def outcome(wide: int, cells: int) -> object:
+        monkeypatch.setattr(table, "WIDE", wide)
+        monkeypatch.setattr(table, "CHUNK_CELLS", cells)
+        return table.compare_tables("t.csv", expected, actual, rules)
+
+    narrow = outcome(10 ** 9, 10 ** 9)  # column by column, one chunk
+    state = _tally_state(narrow)
+    assert sum(t["mismatches"] for t in state) > 0 and any(t["sign_flipped"] for t in state)  # type: ignore[misc]
+    for wide, cells in ((1, 10 ** 9), (1, 90 * 4), (10 ** 9, 90 * 5)):  # blocks, blocks in chunks, chunks
+        other = outcome(wide, cells)
+        assert _tally_state(other) == state, (wide, cells)
+        assert other.problems == narrow.problems and other.notes == narrow.notes  # type: ignore[attr-defined]
+
+
+def test_a_wide_table_is_read_in_chunks_of_bounded_cells(monkeypatch: pytest.MonkeyPatch) -> None:
+    # before, a chunk was always 50,000 rows: 100,000 columns made one chunk of 5e9 cells (40 GB of floats)
+    from holotype.compare.formats import table
+    from holotype.compare.source import Source
+
+    assert table.chunk_rows(1) == table.CHUNK_ROWS and table.chunk_rows(10 ** 9) == 1
+    assert table.chunk_rows(100_000) * 100_000 <= table.CHUNK_CELLS
+    monkeypatch.setattr(table, "CHUNK_CELLS", 1_000)
+    header = ",".join(f'"c,{i}"' for i in range(200))  # quoted delimiters count once per column
+    body = "".join(",".join(str(r + i) for i in range(200)) + "\n" for r in range(23))
+    src = Source.from_bytes(f"{header}\n{body}".encode(), "w.csv", "w.csv")
+    assert table.column_count(src, ",", '"') == 200
+    sizes = [len(chunk) for chunk in table._chunks(src, ",", '"')]
+    assert sizes == [5, 5, 5, 5, 3]
+
+
+def test_block_folding_matches_folding_each_column() -> None:
+    from holotype.compare.numbers import judge
+    from holotype.compare.tally import Tally, fold_numeric
+    from holotype.tolerance import Tolerance
+
+    rng = np.random.default_rng(3)
+    tol = Tolerance(rtol=1e-6, atol=1e-6)
+    e = rng.normal(size=(40, 12)) * 10.0 ** rng.integers(-5, 5, size=12)
+    a = e * (1 + rng.normal(size=e.shape) * 10.0 ** rng.integers(-12, -2, size=12))
+    e[:, 0] = a[:, 0] = 0.0  # zeros on both sides: every value exact
+    a[5, 1], e[6, 2], a[7, 3], e[8, 3] = math.nan, math.inf, -math.inf, -math.inf
+    e[:, 4], a[:, 4] = math.nan, math.nan  # no finite value at all
+    a[:, 5] = e[:, 5]
+    e[:, 6] = a[:, 6] = 1.0
+    e[0, 6], a[0, 6], a[1, 6] = 1e-9, 2e-9, 1.1  # row 0 passes on atol with relative error 1; row 1 fails at 0.1
+    wheres = [lambda i, j=j: f"row {i} col {j}" for j in range(12)]
+    block = [Tally(f"c{j}", tol) for j in range(12)]
+    fold_numeric(block, e, a, judge(e, a, tol), wheres)
+    for j in range(12):
+        alone = Tally(f"c{j}", tol)
+        ej, aj = np.ascontiguousarray(e[:, j]), np.ascontiguousarray(a[:, j])
+        alone.add_numeric(ej, aj, judge(ej, aj, tol), wheres[j])
+        assert vars(block[j]) == vars(alone) or _same_with_nan(vars(block[j]), vars(alone)), j
+    assert block[0].decades == {"exact": 40} and block[4].decades == {"exact": 40}  # NaN meets NaN
+    assert block[1].mismatches >= 1 and block[1].worst_where == "row 5 col 1" and block[1].min_lre < 15
+    assert block[6].worst_where == "row 1 col 6" and block[6].worst_failed  # failures first, then the largest
+    assert all(sum(t.decades.values()) == t.compared == 40 for t in block)
+
+
+def _same_with_nan(x: dict[str, object], y: dict[str, object]) -> bool:
+    def norm(v: object) -> object:
+        return "nan" if isinstance(v, float) and math.isnan(v) else v
+    return {k: norm(v) for k, v in x.items()} == {k: norm(v) for k, v in y.items()}
+
+
+# IEEE 754 binary64 has a 53-bit significand: 2**53 + 1 is the first integer it cannot hold, and neighbours
+# beyond it round to one double (checked here with Python's own float(), itself correctly rounded)
+BIG = 1234567890123456789
+assert float(2 ** 53 + 1) == float(2 ** 53) and float(BIG) == float(BIG - 1)
+
+
+def _big_integer_files(tmp_path: Path, kind: str, shift: int, sign: int = 1) -> tuple[Path, Path]:
+    e_val, a_val = BIG, sign * (BIG - shift)
+    if kind == "csv":
+        body = lambda v: f"id,n\n{v},3\n4,5\n"  # noqa: E731
+    elif kind == "wide.csv":  # wide enough for the block judging
+        names = ",".join(["id"] + [f"c{i}" for i in range(80)])
+        body = lambda v: f"{names}\n{v}," + ",".join(str(i * 0.5) for i in range(80)) + "\n"  # noqa: E731
+    elif kind == "json":
+        body = lambda v: json.dumps({"sample": {"id": v, "n": 3}})  # noqa: E731
+    elif kind == "txt":
+        body = lambda v: f"first reading at {v} ns\n"  # noqa: E731
+    else:
+        e, a = tmp_path / "e.npy", tmp_path / "a.npy"
+        np.save(e, np.array([e_val, 7], dtype=np.int64))
+        np.save(a, np.array([a_val, 7], dtype=np.int64))
+        return e, a
+    e, a = tmp_path / f"e.{kind}", tmp_path / f"a.{kind}"
+    write(e, body(e_val))
+    write(a, body(a_val))
+    return e, a
+
+
+@pytest.mark.parametrize("kind", ["csv", "wide.csv", "json", "txt", "npy"])
+def test_integers_beyond_2_53_that_share_a_double_are_still_told_apart(tmp_path: Path, kind: str) -> None:
+    # before, both sides became the same double: an identifier or nanosecond time changed by one passed an
+    # exact rule as 'max rel err 0'
+    e, a = _big_integer_files(tmp_path, kind, shift=1)
+    exact = run_cli("compare", e, a, "--rtol", "0", "--atol", "0", "--format", "json")
+    assert exact.code == 1, exact.out
+    assert f"{BIG} recorded, {BIG - 1} found" in exact.out and "max abs err 1" in exact.out
+    assert run_cli("compare", e, a, "--ulps", "0", "--quiet").code == 1
+    # within the tolerances that hold it: one step of binary64 (ulps 1), relative 1e-9 (8.1e-19 here)
+    assert run_cli("compare", e, a, "--ulps", "1", "--quiet").code == 0
+    assert run_cli("compare", e, a, "--rtol", "1e-9", "--quiet").code == 0
+    (tmp_path / "same").mkdir()
+    same = _big_integer_files(tmp_path / "same", kind, shift=0)
+    assert run_cli("compare", *same, "--rtol", "0", "--atol", "0", "--quiet").code == 0
+
+
+def test_a_sign_free_big_integer_flipped_and_moved_is_not_passed_as_a_flip(tmp_path: Path) -> None:
+    write(tmp_path / "e.csv", f"id,n\n{BIG},3\n{BIG + 10},5\n")
+    write(tmp_path / "flipped.csv", f"id,n\n{-BIG},3\n{-BIG - 10},5\n")
+    write(tmp_path / "moved.csv", f"id,n\n{-BIG + 1},3\n{-BIG - 10},5\n")  # flipped, and one moved by 1
+    exact = ("--rtol", "0", "--atol", "0", "--sign-free", "id", "--quiet")
+    assert run_cli("compare", tmp_path / "e.csv", tmp_path / "flipped.csv", *exact).code == 0
+    assert run_cli("compare", tmp_path / "e.csv", tmp_path / "moved.csv", *exact).code == 1

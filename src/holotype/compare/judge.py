@@ -9,10 +9,10 @@ from typing import Any
 import numpy as np
 
 from holotype.compare.cells import MISSING, NUMBER, TEXT, column_arrays
-from holotype.compare.numbers import judge
+from holotype.compare.numbers import as_binary64, integer_gaps, judge, settle_gaps
 from holotype.compare.outcome import Outcome
-from holotype.compare.tally import Tally
-from holotype.compare.tokens import embedded_numbers
+from holotype.compare.tally import Tally, fold_numeric
+from holotype.compare.tokens import embedded_numbers, number_array
 from holotype.phrasing import clip, listed
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -33,8 +33,8 @@ class ColumnJudge:
         """A chunk of cells of any kind: numbers numerically, text and missing values exactly."""
         e_num, e_kind, e_obj = column_arrays(expected)
         a_num, a_kind, a_obj = column_arrays(actual)
-        if e_kind is None and a_kind is None:
-            self.numeric(e_num, a_num, where)
+        if e_kind is None and a_kind is None:  # integers go in as they are: beyond 2**53 they are judged exactly
+            self.numeric(_integers_kept(expected, e_num), _integers_kept(actual, a_num), where)
             return
         n = e_num.shape[0]
         ek = e_kind if e_kind is not None else np.zeros(n, dtype=np.int8)
@@ -43,8 +43,8 @@ class ColumnJudge:
         idx = np.where(both_num)[0]
         if idx.size:
             self.numeric(e_num[idx], a_num[idx], lambda i: where(int(idx[i])))
-        inside_e: list[float] = []
-        inside_a: list[float] = []
+        inside_e: list[float | int] = []
+        inside_a: list[float | int] = []
         inside_where: list[str] = []
         for i in np.where(~both_num)[0].tolist():
             if ek[i] == MISSING and ak[i] == MISSING:
@@ -64,7 +64,7 @@ class ColumnJudge:
             a_val = "(missing)" if ak[i] == MISSING else (a_obj[i] if a_obj is not None else a_num[i])
             self.exact(equal, where(i), e_val, a_val)
         if inside_e:
-            self.numeric(np.array(inside_e), np.array(inside_a), inside_where.__getitem__)
+            self.numeric(number_array(inside_e), number_array(inside_a), inside_where.__getitem__)
 
     def text(self, expected: str, actual: str, where: str) -> None:
         """Two strings (a JSON string, say): equal, or the same text around numbers compared numerically."""
@@ -73,7 +73,7 @@ class ColumnJudge:
             self.exact(expected == actual, where, expected, actual)
             return
         count = len(pair[0])
-        self.numeric(np.array(pair[0]), np.array(pair[1]),
+        self.numeric(number_array(pair[0]), number_array(pair[1]),
                      lambda k: f"{where}, number {k + 1} in the string" if count > 1 else where)
 
     def exact(self, equal: bool, where: str, expected: Any, actual: Any) -> None:
@@ -83,11 +83,16 @@ class ColumnJudge:
             self.flipped.add_exact(equal, where, expected, actual)
 
     def numeric(self, e: np.ndarray, a: np.ndarray, where: Where) -> None:
+        """Numbers of any kind; integers beyond 2**53 that binary64 cannot tell apart are judged exactly."""
         tol = self.tally.tolerance
-        self.tally.add_numeric(e, a, judge(e, a, tol), where)
+        e64, a64 = as_binary64(e), as_binary64(a)
+        gaps = integer_gaps(e, a, e64, a64)
+        shown = (e, a) if gaps is not None else None  # exact integers for the worst value's message
+        self.tally.add_numeric(e64, a64, settle_gaps(judge(e64, a64, tol), gaps, tol), where, shown)
         if self.flipped is not None:
-            neg = -a
-            self.flipped.add_numeric(e, neg, judge(e, neg, tol), where)
+            neg = -a64
+            gaps = integer_gaps(e, a, e64, a64, negate=True)
+            self.flipped.add_numeric(e64, neg, settle_gaps(judge(e64, neg, tol), gaps, tol), where)
 
     def result(self) -> Tally:
         """The orientation that fits: a sign-free unit may be flipped as a whole, never value by value."""
@@ -95,6 +100,23 @@ class ColumnJudge:
             self.flipped.sign_flipped = True
             return self.flipped
         return self.tally
+
+
+def _integers_kept(values: Any, numbers: np.ndarray) -> np.ndarray:
+    arr = np.asarray(values)
+    return arr if arr.dtype.kind in "iu" else numbers
+
+
+def feed_numeric_block(judges: list[ColumnJudge], expected: np.ndarray, actual: np.ndarray,
+                       wheres: list[Where]) -> None:
+    """Numeric columns that share one tolerance, judged as one 2-D block (column j feeds `judges[j]`):
+    the same figures as feeding each column, in a few array passes for a table of many columns."""
+    tol = judges[0].tally.tolerance
+    fold_numeric([j.tally for j in judges], expected, actual, judge(expected, actual, tol), wheres)
+    if tol.sign_free:
+        neg = -actual
+        fold_numeric([j.flipped for j in judges if j.flipped is not None], expected, neg,
+                     judge(expected, neg, tol), wheres)
 
 
 def plan_columns(output: str, e_cols: list[str], a_cols: list[str], rules: RuleBook, outcome: Outcome) -> list[str]:

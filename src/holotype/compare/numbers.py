@@ -10,7 +10,9 @@ NaN equals NaN; an infinity equals only the same infinity; with no criterion set
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -62,6 +64,89 @@ class Verdict:
     abs_err: np.ndarray  # float; inf where special values disagree
     rel_err: np.ndarray  # float; relative to expected (absolute where expected is 0)
     all_finite: bool = False  # no NaN or infinity on either side (an error is then infinite only by overflow)
+
+
+# binary64 holds every integer up to 2**53; beyond it neighbouring integers share one double
+EXACT_INTEGERS = float(2 ** 53)
+
+
+def _float_of(value: Any) -> float:
+    try:
+        return float(value)
+    except OverflowError:  # an integer beyond binary64's range: its sign and magnitude as infinity
+        return math.copysign(math.inf, value)
+
+
+def as_binary64(values: np.ndarray) -> np.ndarray:
+    """Numbers of any kind (float, integer, or Python numbers in an object array) as float64."""
+    if values.dtype.kind != "O":
+        return values.astype(np.float64, copy=False)
+    return np.array([_float_of(v) for v in values.tolist()], dtype=np.float64)
+
+
+@dataclass
+class IntegerGaps:
+    """Integers that differ although their binary64 values are equal: where, and by how much exactly."""
+
+    at: np.ndarray  # positions
+    abs_err: np.ndarray
+    rel_err: np.ndarray
+
+
+def integer_gaps(expected: np.ndarray, actual: np.ndarray, e64: np.ndarray, a64: np.ndarray,
+                 negate: bool = False) -> IntegerGaps | None:
+    """Where integer values (beyond 2**53) differ by less than binary64 can show (`negate`: actual's
+    negation), or None: a changed 19-digit identifier or nanosecond time would otherwise compare as equal."""
+    if expected.dtype.kind not in "iuO" or actual.dtype.kind not in "iuO":
+        return None
+    with np.errstate(invalid="ignore"):
+        cand = np.flatnonzero(((-a64 if negate else a64) == e64) & (np.abs(e64) >= EXACT_INTEGERS))
+    if not cand.size:
+        return None
+    ec, ac = expected[cand], actual[cand]
+    if negate or ec.dtype != ac.dtype or ec.dtype.kind == "O":  # exact comparison, no wrapping
+        ec, ac = ec.astype(object), ac.astype(object)
+        if negate:
+            ac = -ac
+    differ = np.flatnonzero(ec != ac)
+    at: list[int] = []
+    abs_err: list[float] = []
+    rel_err: list[float] = []
+    for k in differ.tolist():
+        x, y = ec[k], ac[k]
+        try:
+            xi, yi = int(x), int(y)  # beyond 2**53 a float is an integer too
+        except (OverflowError, ValueError, TypeError):
+            continue  # an infinity or NaN: the kernel's special values
+        gap = abs(yi - xi)
+        at.append(int(cand[k]))
+        abs_err.append(_float_of(gap))
+        rel_err.append(gap / abs(xi) if xi else _float_of(gap))
+    if not at:
+        return None
+    return IntegerGaps(np.array(at, dtype=np.int64), np.array(abs_err), np.array(rel_err))
+
+
+def settle_gaps(verdict: Verdict, gaps: IntegerGaps | None, tol: Tolerance) -> Verdict:
+    """The verdict with integer gaps judged by their exact differences: unequal integers are never exact,
+    and lie at least one binary64 step apart."""
+    if gaps is None:
+        return verdict
+    rel = gaps.rel_err
+    ok = np.zeros(rel.shape, dtype=bool)
+    if not tol.exact:
+        if tol.atol is not None:
+            ok |= gaps.abs_err <= tol.atol
+        if tol.rtol is not None:
+            ok |= rel <= tol.rtol
+        if tol.ulps is not None and tol.ulps >= 1:
+            ok[:] = True
+        if tol.digits is not None:
+            with np.errstate(divide="ignore"):
+                ok |= np.clip(-np.log10(rel), 0.0, MAX_LRE) >= tol.digits
+    passed, abs_err, rel_err = verdict.passed.copy(), verdict.abs_err.copy(), verdict.rel_err.copy()
+    passed[gaps.at], abs_err[gaps.at], rel_err[gaps.at] = ok, gaps.abs_err, rel
+    return Verdict(passed, abs_err, rel_err, verdict.all_finite and bool(np.isfinite(gaps.abs_err).all()))
 
 
 def judge(expected: np.ndarray, actual: np.ndarray, tol: Tolerance) -> Verdict:

@@ -11,12 +11,15 @@ from __future__ import annotations
 
 import re
 
+import numpy as np
+
 NUMBER = re.compile(
     r"(?<![A-Za-z0-9_.])[-+]?(?:(?:\d+\.\d*|\.\d+|\d+)(?:[eE][-+]?\d+)?|inf(?:inity)?|nan)(?![A-Za-z0-9_])",
     re.IGNORECASE,
 )
 MARK = "\x00"
 _SPACE = re.compile(r"\s+")
+_INTEGER = re.compile(r"[+-]?[0-9]+")
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
 TIMELIKE = re.compile(
@@ -43,13 +46,28 @@ def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[st
     return shape, numbers
 
 
-def embedded_numbers(expected: str, actual: str) -> tuple[list[float], list[float]] | None:
+def exact_number(token: str) -> float | int:
+    """A number token as a float, or as an int where it is an integer binary64 would round (beyond 2**53)."""
+    if len(token) > 15 and _INTEGER.fullmatch(token):
+        value = int(token)
+        if abs(value) > 2 ** 53:
+            return value
+    return float(token)
+
+
+def number_array(values: list[float | int]) -> np.ndarray:
+    """Numbers from text as an array: float64, or objects where an integer must stay exact."""
+    exact = any(isinstance(v, int) for v in values)
+    return np.array(values, dtype=object if exact else np.float64)
+
+
+def embedded_numbers(expected: str, actual: str) -> tuple[list[float | int], list[float | int]] | None:
     """The numbers of two texts of the same shape, paired; None when their shapes differ (or hold none)."""
     e_shape, e_nums = split_numbers(expected)
     a_shape, a_nums = split_numbers(actual)
     if e_shape != a_shape or len(e_nums) != len(a_nums) or not e_nums:
         return None
-    return [float(x) for x in e_nums], [float(y) for y in a_nums]
+    return [exact_number(x) for x in e_nums], [exact_number(y) for y in a_nums]
 
 
 def only_time_differs(expected: str, actual: str) -> bool:

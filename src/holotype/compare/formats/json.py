@@ -7,7 +7,6 @@ lists the last index is kept (`loadings[*][2]`), so a matrix column is one unit,
 from __future__ import annotations
 
 import json
-import math
 import re
 from fnmatch import fnmatchcase
 from typing import Any
@@ -109,8 +108,9 @@ def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook)
         judge_ = ColumnJudge(column, tol)
         numeric = [p for p in paths if _is_number(e[p][0]) and _is_number(a[p][0])]
         if numeric:
-            ev = np.array([_as_float(e[p][0]) for p in numeric], dtype=np.float64)
-            av = np.array([_as_float(a[p][0]) for p in numeric], dtype=np.float64)
+            # as parsed (objects): integers beyond 2**53 are judged exactly, not as their rounded doubles
+            ev = np.array([e[p][0] for p in numeric], dtype=object)
+            av = np.array([a[p][0] for p in numeric], dtype=object)
             judge_.numeric(ev, av, numeric.__getitem__)
         for p in paths:
             if _is_number(e[p][0]) and _is_number(a[p][0]):
@@ -123,13 +123,6 @@ def compare_json(output: str, expected: Source, actual: Source, rules: RuleBook)
         tallies.append(judge_.result())
     outcome.tallies = tallies
     return outcome
-
-
-def _as_float(v: Any) -> float:
-    try:
-        return float(v)
-    except OverflowError:  # an integer beyond binary64: compare its sign and magnitude as infinity
-        return math.copysign(math.inf, v)
 
 
 class JsonFormat:

@@ -1,26 +1,38 @@
 """CSV and TSV outputs: columns matched by name, rows by position (streamed) or by key columns.
 
 Parsing uses pandas' C tokenizer in chunks: it is correctly rounded (checked against Python's
-float() in the tests), handles quoting and dialects, and keeps memory bounded by a chunk.
+float() in the tests), handles quoting and dialects, and keeps memory bounded by a chunk. A chunk holds
+about CHUNK_CELLS cells whatever the width, so a table of 100,000 columns is read a few rows at a time;
+a wide chunk is taken apart in one conversion and its numeric columns are judged as 2-D blocks.
 """
 
 from __future__ import annotations
 
 import csv
+import io
 import queue
 import threading
 from collections.abc import Iterator
 from typing import Any
 
+import numpy as np
+
 from holotype.compare.formats import register
-from holotype.compare.judge import ColumnJudge, plan_columns
+from holotype.compare.judge import ColumnJudge, Where, feed_numeric_block, plan_columns
+from holotype.compare.numbers import EXACT_INTEGERS
 from holotype.compare.outcome import Outcome
 from holotype.compare.source import Source
 from holotype.errors import UnreadableOutput
 from holotype.phrasing import listed
 from holotype.tolerance import RuleBook
 
-CHUNK_ROWS = 50_000
+CHUNK_ROWS = 50_000  # rows per chunk of a narrow table
+# cells per chunk of a wide one: pandas spends ~20 us per column on each chunk, so fewer cells would
+# slow a wide table down many times; 2,000,000 float cells are 16 MB
+CHUNK_CELLS = 2_000_000
+WIDE = 64  # columns from which a chunk is converted in one go and judged in blocks
+BLOCK_CELLS = 250_000  # cells judged at once: a dozen scratch arrays of this size, not of the whole chunk
+HEADER_LIMIT = 64 << 20  # bytes of the header line read to count the columns
 AHEAD = 2  # chunks parsed ahead per file: memory holds at most this many more per file
 
 
@@ -36,6 +48,22 @@ def sniff_dialect(src: Source) -> tuple[str, str]:
         return dialect.delimiter, dialect.quotechar or '"'
     except csv.Error:
         return ",", '"'
+
+
+def column_count(src: Source, delimiter: str, quote: str) -> int:
+    """How many columns the header row names (at least 1; what fits in HEADER_LIMIT bytes is counted)."""
+    with src.open() as fh:
+        line = fh.readline(HEADER_LIMIT).decode("utf-8-sig", "replace")
+    try:
+        fields = next(csv.reader(io.StringIO(line), delimiter=delimiter, quotechar=quote), [])
+    except csv.Error:
+        fields = line.split(delimiter)
+    return max(1, len(fields))
+
+
+def chunk_rows(columns: int) -> int:
+    """Rows per chunk for a table this wide: CHUNK_ROWS, fewer where that would pass CHUNK_CELLS."""
+    return max(1, min(CHUNK_ROWS, CHUNK_CELLS // columns))
 
 
 def _reader(src: Source, delimiter: str, quote: str, chunk_rows: int | None) -> Any:
@@ -57,7 +85,7 @@ def _first_line(exc: BaseException) -> str:
 def _chunks(src: Source, delimiter: str, quote: str) -> Iterator[Any]:
     import pandas as pd
 
-    reader = _reader(src, delimiter, quote, CHUNK_ROWS)
+    reader = _reader(src, delimiter, quote, chunk_rows(column_count(src, delimiter, quote)))
     try:
         while True:
             try:
@@ -140,9 +168,11 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
         e_df = _read_whole(expected, e_delim, e_quote)
         a_df = _read_whole(actual, a_delim, a_quote)
         return compare_keyed_frames(output, e_df, a_df, rules, (expected.label, actual.label))
-    judges: dict[str, ColumnJudge] = {}
+    judges: list[ColumnJudge] = []
     e_rows = a_rows = 0
     compared: list[str] = []
+    e_at: list[int] = []
+    a_at: list[int] = []
     with _Ahead(_chunks(expected, e_delim, e_quote)) as e_iter, _Ahead(_chunks(actual, a_delim, a_quote)) as a_iter:
         first = True
         while True:
@@ -152,24 +182,82 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
             if first:
                 head: Any = e_chunk if e_chunk is not None else a_chunk
                 other: Any = a_chunk if a_chunk is not None else e_chunk
-                compared = plan_columns(output, [str(c) for c in head.columns], [str(c) for c in other.columns],
-                                        rules, outcome)
-                judges = {c: ColumnJudge(c, rules.for_column(output, c)) for c in compared}
+                e_names, a_names = [str(c) for c in head.columns], [str(c) for c in other.columns]
+                compared = plan_columns(output, e_names, a_names, rules, outcome)
+                judges = [ColumnJudge(c, rules.for_column(output, c)) for c in compared]
+                e_first = {c: i for i, c in reversed(list(enumerate(e_names)))}
+                a_first = {c: i for i, c in reversed(list(enumerate(a_names)))}
+                e_at, a_at = [e_first[c] for c in compared], [a_first[c] for c in compared]
                 first = False
             ne = 0 if e_chunk is None else len(e_chunk)
             na = 0 if a_chunk is None else len(a_chunk)
             n = min(ne, na)
-            if n:
-                for c in compared:
-                    ev = e_chunk[c].to_numpy()[:n]
-                    av = a_chunk[c].to_numpy()[:n]
-                    judges[c].feed(ev, av, _row_where(e_rows, c))
+            if n and compared:
+                wheres = [_row_where(e_rows, c) for c in compared]
+                if max(e_chunk.shape[1], a_chunk.shape[1]) >= WIDE:
+                    _judge_wide(judges, wheres, _Apart(e_chunk, n), _Apart(a_chunk, n), e_at, a_at)
+                else:
+                    for judge_, where, ep, ap in zip(judges, wheres, e_at, a_at):
+                        judge_.feed(e_chunk.iloc[:n, ep].to_numpy(), a_chunk.iloc[:n, ap].to_numpy(), where)
             e_rows += ne
             a_rows += na
     if e_rows != a_rows:
         outcome.problem("output.shape", f"{e_rows:,} rows recorded, {a_rows:,} found", e_rows, a_rows)
-    outcome.tallies = [judges[c].result() for c in compared]
+    outcome.tallies = [j.result() for j in judges]
     return outcome
+
+
+class _Apart:
+    """The first n rows of a wide chunk as one 2-D array (one conversion: pandas is slow column by column
+    on 100,000 columns), and which of its columns pandas read as numbers."""
+
+    def __init__(self, chunk: Any, n: int) -> None:
+        self.chunk, self.n = chunk, n
+        self.whole = chunk.to_numpy()[:n]  # numbers alone give a float or int array; text makes it objects
+        if self.whole.dtype.kind in "fiu":  # every column numeric: no need to ask pandas column by column
+            self.numeric = np.ones(self.whole.shape[1], dtype=bool)
+        else:
+            self.numeric = np.array([dt.kind in "fiu" for dt in chunk.dtypes], dtype=bool)
+
+    def numbers(self, at: list[int]) -> np.ndarray:
+        """Numeric columns as float64 (from objects too: a Python int or float converts as NumPy would)."""
+        return np.ascontiguousarray(self.whole[:, at], dtype=np.float64)
+
+    def read(self, at: int) -> np.ndarray:
+        """One column exactly as pandas read it (integers as integers)."""
+        values: np.ndarray = self.chunk.iloc[:self.n, at].to_numpy()
+        return values
+
+    def column(self, at: int) -> np.ndarray:
+        """One column as the narrow path gives it: numbers as float64, anything else as it came."""
+        values: np.ndarray = self.whole[:, at]
+        return values.astype(np.float64) if self.numeric[at] else values
+
+
+def _judge_wide(judges: list[ColumnJudge], wheres: list[Where], e: _Apart, a: _Apart,
+                e_at: list[int], a_at: list[int]) -> None:
+    """One wide chunk: columns numeric on both sides judged in blocks of one tolerance, the rest one by one."""
+    blocks: dict[Any, list[int]] = {}
+    for k, (ep, ap) in enumerate(zip(e_at, a_at)):
+        if e.numeric[ep] and a.numeric[ap]:
+            blocks.setdefault(judges[k].tally.tolerance, []).append(k)
+        else:
+            judges[k].feed(e.column(ep), a.column(ap), wheres[k])
+    step = max(1, BLOCK_CELLS // max(1, len(e.whole)))  # columns per block: the judge's scratch stays small
+    for same in blocks.values():
+        for start in range(0, len(same), step):
+            ks = same[start:start + step]
+            e_block, a_block = e.numbers([e_at[k] for k in ks]), a.numbers([a_at[k] for k in ks])
+            # beyond 2**53 a double may stand for several integers: such columns are judged as read
+            with np.errstate(invalid="ignore"):
+                big = ((np.abs(e_block) >= EXACT_INTEGERS) | (np.abs(a_block) >= EXACT_INTEGERS)).any(axis=0)
+            if big.any():
+                for k in (ks[j] for j in np.flatnonzero(big).tolist()):
+                    judges[k].feed(e.read(e_at[k]), a.read(a_at[k]), wheres[k])
+                keep = np.flatnonzero(~big)
+                ks, e_block, a_block = [ks[j] for j in keep.tolist()], e_block[:, keep], a_block[:, keep]
+            if ks:
+                feed_numeric_block([judges[k] for k in ks], e_block, a_block, [wheres[k] for k in ks])
 
 
 def _read_whole(src: Source, delim: str, quote: str) -> Any:

@@ -10,13 +10,11 @@ from __future__ import annotations
 
 import re
 
-import numpy as np
-
 from holotype.compare.formats import register
 from holotype.compare.judge import ColumnJudge
 from holotype.compare.outcome import Outcome
 from holotype.compare.source import Source
-from holotype.compare.tokens import only_time_differs, split_numbers
+from holotype.compare.tokens import exact_number, number_array, only_time_differs, split_numbers
 from holotype.errors import UnreadableOutput
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -52,8 +50,8 @@ def _judge_lines(e_lines: list[tuple[int, str]], a_lines: list[tuple[int, str]],
     """Judge paired lines; also return the unequal pairs (for the date-and-time hint)."""
     judge_ = ColumnJudge("text", tol)
     exact_space = tol.whitespace == "exact"
-    e_vals: list[float] = []
-    a_vals: list[float] = []
+    e_vals: list[float | int] = []
+    a_vals: list[float | int] = []
     where: list[str] = []
     unequal: list[tuple[str, str]] = []
     for (n, el), (_, al) in zip(e_lines, a_lines):
@@ -69,11 +67,11 @@ def _judge_lines(e_lines: list[tuple[int, str]], a_lines: list[tuple[int, str]],
         if not e_nums:
             judge_.exact(True, f"{where_prefix}line {n}", el, al)
         for k, (x, y) in enumerate(zip(e_nums, a_nums), start=1):
-            e_vals.append(float(x))
-            a_vals.append(float(y))
+            e_vals.append(exact_number(x))
+            a_vals.append(exact_number(y))
             where.append(f"{where_prefix}line {n}, number {k}")
     if e_vals:
-        judge_.numeric(np.array(e_vals), np.array(a_vals), where.__getitem__)
+        judge_.numeric(number_array(e_vals), number_array(a_vals), where.__getitem__)
     return judge_, unequal
 
 
