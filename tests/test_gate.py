@@ -317,9 +317,18 @@ def test_a_byte_changed_inside_an_installed_wheel_fails_naming_the_file(tmp_path
     assert run_cli("check", "--strict", "-C", root).code == 0
     assert run_cli("check", "--strict", "-C", root).code == 0  # the second answered from the cache
     if trust == "cached answers":
+        import json
+
+        import holotype.capture.installed as installed
         from holotype.capture.digest_cache import DigestCache
 
-        assert DigestCache().fact(f"installed:{venv.site / 'beta-2.0.dist-info'}")
+        answer = json.loads(DigestCache().fact(f"installed:{venv.site / 'beta-2.0.dist-info'}") or "{}")
+        assert "beta/__init__.py" in answer["paths"] and answer["record"]
+        read: list[Path] = []
+        real = installed.cached_listing
+        monkeypatch.setattr(installed, "cached_listing", lambda d, c: read.append(d) or real(d, c))
+        assert run_cli("check", "--strict", "-C", root).code == 0
+        assert venv.site / "beta-2.0.dist-info" not in read  # answered without reading its listing again
     module = venv.site / "beta" / "__init__.py"  # a used package's dependency
     original = module.read_bytes()
     module.write_bytes(original + b"THRESHOLD = 0.6\n")

@@ -88,6 +88,38 @@ def _kept(rel: str) -> bool:
     return not (tail in INSTALLER_MARKS and head.endswith(".dist-info"))
 
 
+def _record_stamp(dist_info: Path) -> str | None:
+    """The identity of a package's RECORD (which decides its listing); None when it cannot be read, or
+    changed a moment ago (its times may be shared with the next write)."""
+    try:
+        st = os.stat(dist_info / "RECORD")
+    except OSError:
+        return None
+    if time.time_ns() - max(st.st_mtime_ns, st.st_ctime_ns) <= RACY_SECONDS * 1e9:
+        return None
+    return f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"
+
+
+def _unchanged(dist_info: Path, known: str | None) -> InstalledFiles | None:
+    """The remembered answer for a package that is not editable, while its RECORD and every file its listing
+    names keep the identity they had (the listing is not read again: the answer keeps its file names)."""
+    if not known:
+        return None
+    try:
+        doc = json.loads(known)
+        if doc.get("editable") is not False or doc.get("record") != _record_stamp(dist_info):
+            return None
+        paths = doc["paths"]
+        if not isinstance(paths, list) or not all(isinstance(p, str) for p in paths):
+            return None
+        stamp = _identities(dist_info.parent, paths)
+        if not stamp or stamp != doc["stamp"]:
+            return None
+        return InstalledFiles(files=str(doc["files"]), edited=tuple(str(e) for e in doc["edited"]))
+    except (ValueError, KeyError, TypeError, AttributeError):
+        return None
+
+
 def cached_listing(dist_info: Path, cache: DigestCache | None) -> list[Listed] | None:
     """read_listing, answered from the cache while RECORD keeps its identity (the parse is the slow part)."""
     if cache is None:
@@ -96,7 +128,7 @@ def cached_listing(dist_info: Path, cache: DigestCache | None) -> list[Listed] |
         st = os.stat(dist_info / "RECORD")
     except OSError:
         return None
-    stamp = f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"
+    stamp = f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"  # as _record_stamp
     key = f"listing:{dist_info}"
     known = cache.fact(key)
     if known:
@@ -223,7 +255,7 @@ def _source_tree(folder: Path, project: Path, excludes: tuple[str, ...], skip: s
     return kept, None
 
 
-def _identities(site: Path, listing: list[Listed]) -> str:
+def _identities(site: Path, rels: list[str]) -> str:
     """One digest of every listed file's identity (inode, size, times, mode): unchanged files give the same.
 
     "" when a file changed a moment ago: its times may be shared with the next write, so nothing is trusted."""
@@ -232,7 +264,7 @@ def _identities(site: Path, listing: list[Listed]) -> str:
     numbers = array("q")
     add = numbers.extend
     names: list[str] = []
-    for rel, _ in listing:
+    for rel in rels:
         try:
             st = lstat(prefix + rel)
         except OSError:
@@ -277,33 +309,45 @@ def digest_installed(env: Environment, project: Path, *, cache: DigestCache | No
     from it without looking further; `check --full` (no cache) reads every byte."""
     out: dict[str, InstalledFiles] = {}
     roots: dict[str, list[Path]] = {}
+    # every package's last answer in one query; a package that is not editable is answered from it without
+    # reading its listing when RECORD and every listed file keep their identity
+    known_answers = cache.facts([f"installed:{loc}" for loc in env.locations.values()]) if cache is not None else {}
     for name, location in sorted(env.locations.items()):
+        key = f"installed:{location}"
+        editable = name in env.packages and env.packages[name].origin.kind == "editable"
+        answer = None if editable else _unchanged(Path(location), known_answers.get(key))
+        if answer is not None:
+            out[name] = answer
+            continue
+        record = _record_stamp(Path(location))  # before the listing is read: a later change is seen next time
         listing = cached_listing(Path(location), cache)
         if listing is None:
             continue
-        if name in env.packages and env.packages[name].origin.kind == "editable":
-            roots[name] = code_roots(Path(location).parent, listing)
         site = Path(location).parent
-        if name in env.packages and env.packages[name].origin.kind == "editable":
+        if editable:
+            roots[name] = code_roots(site, listing)
             # what an editable install puts in site-packages names the source folder's absolute path (a .pth
             # file, a finder module): not its code, which `tree` digests; left out so a moved copy is equal
             listing = [item for item in listing if "/" in item.rel or not (
                 item.rel.endswith(".pth") or item.rel.startswith("__editable__"))]
-        key = f"installed:{location}"
-        stamp = _identities(site, listing) if cache is not None else ""
+        rels = [rel for rel, _ in listing]
+        stamp = _identities(site, rels) if cache is not None else ""
+        got: InstalledFiles | None = None
         if cache is not None and stamp:
-            known = cache.fact(key)
-            if known:
-                try:
-                    doc = json.loads(known)
-                    if doc["stamp"] == stamp:
-                        out[name] = InstalledFiles(files=str(doc["files"]), edited=tuple(doc["edited"]))
+            known = known_answers.get(key)
+            try:
+                doc = json.loads(known) if known else None
+                if isinstance(doc, dict) and doc["stamp"] == stamp:
+                    got = InstalledFiles(files=str(doc["files"]), edited=tuple(doc["edited"]))
+                    if doc.get("record") == record and doc.get("editable") == editable:
+                        out[name] = got
                         continue
-                except (ValueError, KeyError, TypeError):
-                    pass
-        got = out[name] = _listed_contents(site, listing, cache)
-        if cache is not None and stamp:
-            cache.remember(key, json.dumps({"stamp": stamp, "files": got.files, "edited": list(got.edited)}))
+            except (ValueError, KeyError, TypeError):
+                pass
+        got = out[name] = got or _listed_contents(site, listing, cache)
+        if cache is not None and stamp and record:
+            cache.remember(key, json.dumps({"stamp": stamp, "record": record, "editable": editable, "paths": rels,
+                                            "files": got.files, "edited": list(got.edited)}))
     skipped = set(skip)
     below = tuple(f + "/" for f in skip_below)
     for name, rec in env.packages.items():
