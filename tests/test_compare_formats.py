@@ -540,6 +540,25 @@ def test_integers_beyond_2_53_that_share_a_double_are_still_told_apart(tmp_path:
     assert run_cli("compare", *same, "--rtol", "0", "--atol", "0", "--quiet").code == 0
 
 
+def test_big_integers_in_a_column_with_missing_cells_are_judged_exactly(tmp_path: Path) -> None:
+    # an identifier column with a missing cell is read as text, and its numbers parsed cell by cell
+    write(tmp_path / "e.csv", f"id,n\n{BIG},3\nNA,5\n{BIG + 2},7\n")
+    write(tmp_path / "a.csv", f"id,n\n{BIG - 1},3\nNA,5\n{BIG + 2}.0,7\n")  # one moved; one rewritten as a float
+    result = run_cli("compare", tmp_path / "e.csv", tmp_path / "a.csv", "--rtol", "0", "--atol", "0")
+    assert result.code == 1 and "1 of 6 values outside tolerance" in result.out, result.out
+    assert f"{BIG} recorded, {BIG - 1} found" in result.out
+
+
+def test_big_integers_in_parquet_columns_are_judged_exactly(tmp_path: Path) -> None:
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    pq.write_table(pa.table({"id": pa.array([BIG, 4], pa.int64())}), tmp_path / "e.parquet")
+    pq.write_table(pa.table({"id": pa.array([BIG - 1, 4], pa.int64())}), tmp_path / "a.parquet")
+    result = run_cli("compare", tmp_path / "e.parquet", tmp_path / "a.parquet", "--rtol", "0", "--atol", "0")
+    assert result.code == 1 and f"{BIG} recorded, {BIG - 1} found" in result.out, result.out
+
+
 def test_a_sign_free_big_integer_flipped_and_moved_is_not_passed_as_a_flip(tmp_path: Path) -> None:
     write(tmp_path / "e.csv", f"id,n\n{BIG},3\n{BIG + 10},5\n")
     write(tmp_path / "flipped.csv", f"id,n\n{-BIG},3\n{-BIG - 10},5\n")
@@ -547,3 +566,14 @@ def test_a_sign_free_big_integer_flipped_and_moved_is_not_passed_as_a_flip(tmp_p
     exact = ("--rtol", "0", "--atol", "0", "--sign-free", "id", "--quiet")
     assert run_cli("compare", tmp_path / "e.csv", tmp_path / "flipped.csv", *exact).code == 0
     assert run_cli("compare", tmp_path / "e.csv", tmp_path / "moved.csv", *exact).code == 1
+
+
+def test_number_tokens_keep_integers_binary64_would_round() -> None:
+    from holotype.compare.tokens import exact_number
+
+    # 2**53 = 9007199254740992 is still exact in binary64; 2**53 + 1 is not (float() rounds it down)
+    assert exact_number("9007199254740992") == 2 ** 53 and isinstance(exact_number("9007199254740992"), float)
+    assert exact_number("-9007199254740993") == -(2 ** 53) - 1
+    assert exact_number(f"{BIG}.000") == BIG and isinstance(exact_number(f"{BIG}.000"), int)
+    for token in ("0.12345678901234567890", "1.234567890123456789e18", f"{BIG}.5"):
+        assert exact_number(token) == float(token) and isinstance(exact_number(token), float)

@@ -9,10 +9,10 @@ from typing import Any
 import numpy as np
 
 from holotype.compare.cells import MISSING, NUMBER, TEXT, column_arrays
-from holotype.compare.numbers import as_binary64, integer_gaps, judge, settle_gaps
+from holotype.compare.numbers import EXACT_INTEGERS, as_binary64, integer_gaps, judge, settle_gaps
 from holotype.compare.outcome import Outcome
 from holotype.compare.tally import Tally, fold_numeric
-from holotype.compare.tokens import embedded_numbers, number_array
+from holotype.compare.tokens import embedded_numbers, exact_number, number_array
 from holotype.phrasing import clip, listed
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -42,7 +42,8 @@ class ColumnJudge:
         both_num = (ek == NUMBER) & (ak == NUMBER)
         idx = np.where(both_num)[0]
         if idx.size:
-            self.numeric(e_num[idx], a_num[idx], lambda i: where(int(idx[i])))
+            self.numeric(_exact_cells(e_num, e_obj, idx), _exact_cells(a_num, a_obj, idx),
+                         lambda i: where(int(idx[i])))
         inside_e: list[float | int] = []
         inside_a: list[float | int] = []
         inside_where: list[str] = []
@@ -100,6 +101,27 @@ class ColumnJudge:
             self.flipped.sign_flipped = True
             return self.flipped
         return self.tally
+
+
+def _exact_cells(numbers: np.ndarray, cells: np.ndarray | None, idx: np.ndarray) -> np.ndarray:
+    """The numbers at `idx`, with the cells beyond 2**53 read again as written (an integer stays exact)."""
+    picked: np.ndarray = numbers[idx]
+    if cells is None:
+        return picked
+    with np.errstate(invalid="ignore"):
+        big = np.flatnonzero(np.abs(picked) >= EXACT_INTEGERS)
+    if not big.size:
+        return picked
+    out: np.ndarray = picked.astype(object)
+    for k in big.tolist():
+        cell = cells[int(idx[k])]
+        if isinstance(cell, int) and not isinstance(cell, bool):
+            out[k] = cell
+        elif isinstance(cell, str):
+            value = exact_number(cell.strip())  # the cell parsed as a number once already
+            if isinstance(value, int):
+                out[k] = value
+    return out
 
 
 def _integers_kept(values: Any, numbers: np.ndarray) -> np.ndarray:

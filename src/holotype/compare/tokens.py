@@ -19,7 +19,7 @@ NUMBER = re.compile(
 )
 MARK = "\x00"
 _SPACE = re.compile(r"\s+")
-_INTEGER = re.compile(r"[+-]?[0-9]+")
+_INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
 TIMELIKE = re.compile(
@@ -47,9 +47,10 @@ def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[st
 
 
 def exact_number(token: str) -> float | int:
-    """A number token as a float, or as an int where it is an integer binary64 would round (beyond 2**53)."""
+    """A number token as a float, or as an int where it is an integer binary64 would round (beyond 2**53),
+    written as one ('1234567890123456789', or with a zero fraction: '1234567890123456789.0')."""
     if len(token) > 15 and _INTEGER.fullmatch(token):
-        value = int(token)
+        value = int(token.partition(".")[0])
         if abs(value) > 2 ** 53:
             return value
     return float(token)
