@@ -13,7 +13,6 @@ from holotype.capture.project import capture_project
 from holotype.capture.usage import declared_requirements, mark_used, used_closure
 from holotype.clock import current_user, epoch_now, timestamp
 from holotype.compare.judgement import config_judgement
-from holotype.compare.runs import failure_finding, process_findings
 from holotype.config import Config, load_config
 from holotype.config_edit import add_seed
 from holotype.errors import ConfigError, HolotypeError, LockfileError
@@ -85,6 +84,8 @@ def record_project(root: Path, *, run: bool = True, python: str | None = None,
         analyses: dict[str, AnalysisRecord] = {}
         pending: list[bytes] = []
         if run:
+            from holotype.compare.runs import failure_finding, process_findings  # NumPy: not for --no-run
+
             plan = make_plan(config, capture.python, config.select(None), config.seed, epoch)
             runner = runner or make_runner(store, jobs=jobs, threads=config.threads, cluster=cluster or config.cluster,
                                            digest_file=config.source.name if config.source else LOCK_NAME)
