@@ -577,3 +577,44 @@ def test_number_tokens_keep_integers_binary64_would_round() -> None:
     assert exact_number(f"{BIG}.000") == BIG and isinstance(exact_number(f"{BIG}.000"), int)
     for token in ("0.12345678901234567890", "1.234567890123456789e18", f"{BIG}.5"):
         assert exact_number(token) == float(token) and isinstance(exact_number(token), float)
+
+
+def test_leading_zeros_place_digits_so_1_05_is_not_1_5(tmp_path: Path) -> None:
+    # before, '1,05' and '1,5' split into the same numbers (1 and 5): a change from 1.5 to 1.05 passed
+    from holotype.compare.tokens import split_numbers
+
+    assert split_numbers("1,05")[0] != split_numbers("1,5")[0]
+    assert split_numbers("0.05") == ("\x00", ["0.05"]) and split_numbers("-007")[1] == ["-7"]
+    write(tmp_path / "e.txt", "mean depth 1,5 m at 12:05\n")
+    write(tmp_path / "a.txt", "mean depth 1,05 m at 12:05\n")
+    assert run_cli("compare", tmp_path / "e.txt", tmp_path / "a.txt", "--quiet").code == 1
+    write(tmp_path / "b.txt", "mean depth 1,5 m at 12:05\n")
+    assert run_cli("compare", tmp_path / "e.txt", tmp_path / "b.txt", "--quiet").code == 0
+
+
+def test_a_semicolon_table_with_decimal_commas_is_read_as_numbers(tmp_path: Path) -> None:
+    # the export many spreadsheet locales write: ';' between cells, ',' as the decimal mark
+    write(tmp_path / "e.csv", "lake;depth;note\nA;1,5;x\nB;0,1;y\n")
+    write(tmp_path / "moved.csv", "lake;depth;note\nA;1,05;x\nB;0,1;y\n")
+    write(tmp_path / "noise.csv", "lake;depth;note\nA;1,5;x\nB;0,10000000000000002;y\n")  # one ULP of 0.1
+    moved = run_cli("compare", tmp_path / "e.csv", tmp_path / "moved.csv")
+    assert moved.code == 1 and "1.5 recorded, 1.05 found" in moved.out, moved.out
+    assert run_cli("compare", tmp_path / "e.csv", tmp_path / "noise.csv", "--quiet").code == 0
+    # a point-decimal table with semicolons keeps its points; a comma inside a cell of such a table is text
+    write(tmp_path / "p.csv", "lake;depth;pair\nA;1.5;1,2\n")
+    write(tmp_path / "q.csv", "lake;depth;pair\nA;1.5;1,3\n")
+    assert run_cli("compare", tmp_path / "p.csv", tmp_path / "q.csv", "--quiet").code == 1
+
+
+def test_the_decimal_comma_reader_is_correctly_rounded() -> None:
+    # Python's float() is correctly rounded (IEEE 754 round-to-nearest); so must the comma reader be
+    from holotype.compare.formats.table import _chunks, sniff_decimal
+    from holotype.compare.source import Source
+
+    rng = np.random.default_rng(12)
+    x = rng.standard_normal(5_000) * 10.0 ** rng.integers(-300, 300, 5_000)
+    text = "i;v\n" + "\n".join(f"{i};{v:.17g}".replace(".", ",") for i, v in enumerate(x)) + "\n"
+    src = Source.from_bytes(text.encode(), "t.csv", "t.csv")
+    assert sniff_decimal(src, ";", '"') == ","
+    parsed = next(_chunks(src, ";", '"', ","))["v"].to_numpy()
+    assert np.array_equal(parsed, np.array([float(f"{v:.17g}") for v in x]))

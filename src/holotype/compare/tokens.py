@@ -37,7 +37,18 @@ def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[st
     numbers: list[str] = []
 
     def keep(m: re.Match[str]) -> str:
-        numbers.append(m.group(0))
+        token = m.group(0)
+        sign = token[:1] if token[:1] in "+-" else ""
+        body = token[len(sign):]
+        if len(body) > 1 and body[0] == "0" and body[1].isdigit():
+            # leading zeros belong to the shape: in '1,05' or '12:05' they place the digits, so '1,05' and
+            # '1,5' must not become the same numbers (1 and 5)
+            digits = body.lstrip("0")
+            if not digits[:1].isdigit():
+                digits = "0" + digits  # '000' or '00.5': keep the zero the number needs
+            numbers.append(sign + digits)
+            return "0" * (len(body) - len(digits)) + MARK
+        numbers.append(token)
         return MARK
 
     shape = NUMBER.sub(keep, text)

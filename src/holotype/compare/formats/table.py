@@ -11,6 +11,7 @@ from __future__ import annotations
 import csv
 import io
 import queue
+import re
 import threading
 from collections.abc import Iterator
 from typing import Any
@@ -50,6 +51,30 @@ def sniff_dialect(src: Source) -> tuple[str, str]:
         return ",", '"'
 
 
+_COMMA_DECIMAL = re.compile(r"\s*[+-]?\d+,\d+(?:[eE][+-]?\d+)?\s*")
+_POINT_DECIMAL = re.compile(r"\s*[+-]?\d*\.\d+(?:[eE][+-]?\d+)?\s*")
+
+
+def sniff_decimal(src: Source, delimiter: str, quote: str) -> str:
+    """The decimal mark: ',' where a table not delimited by commas writes its numbers so ('1,5' in a
+    semicolon-separated export) and none of them with a point; '.' otherwise."""
+    if delimiter == ",":
+        return "."
+    head = src.head(65536).decode("utf-8-sig", "replace")
+    lines = head.splitlines()[1:51]  # below the header
+    comma = point = 0
+    try:
+        for row in csv.reader(lines, delimiter=delimiter, quotechar=quote):
+            for cell in row:
+                if _COMMA_DECIMAL.fullmatch(cell):
+                    comma += 1
+                elif _POINT_DECIMAL.fullmatch(cell):
+                    point += 1
+    except csv.Error:
+        return "."
+    return "," if comma and not point else "."
+
+
 def column_count(src: Source, delimiter: str, quote: str) -> int:
     """How many columns the header row names (at least 1; what fits in HEADER_LIMIT bytes is counted)."""
     with src.open() as fh:
@@ -66,11 +91,12 @@ def chunk_rows(columns: int) -> int:
     return max(1, min(CHUNK_ROWS, CHUNK_CELLS // columns))
 
 
-def _reader(src: Source, delimiter: str, quote: str, chunk_rows: int | None) -> Any:
+def _reader(src: Source, delimiter: str, quote: str, chunk_rows: int | None, decimal: str = ".") -> Any:
     import pandas as pd
 
     try:
-        return pd.read_csv(src.open(), sep=delimiter, quotechar=quote, keep_default_na=False, na_values=[],
+        return pd.read_csv(src.open(), sep=delimiter, quotechar=quote, decimal=decimal, keep_default_na=False,
+                           na_values=[],
                            chunksize=chunk_rows, encoding="utf-8-sig", engine="c", low_memory=False,
                            skip_blank_lines=True)
     except (ValueError, UnicodeDecodeError) as exc:
@@ -82,10 +108,10 @@ def _first_line(exc: BaseException) -> str:
     return text[0] if text else type(exc).__name__
 
 
-def _chunks(src: Source, delimiter: str, quote: str) -> Iterator[Any]:
+def _chunks(src: Source, delimiter: str, quote: str, decimal: str = ".") -> Iterator[Any]:
     import pandas as pd
 
-    reader = _reader(src, delimiter, quote, chunk_rows(column_count(src, delimiter, quote)))
+    reader = _reader(src, delimiter, quote, chunk_rows(column_count(src, delimiter, quote)), decimal)
     try:
         while True:
             try:
@@ -164,16 +190,18 @@ def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBoo
     for src in (expected, actual):
         if not src.head(65536).decode("utf-8-sig", "replace").strip():
             raise UnreadableOutput("empty table (no header row)", src.label)
+    e_decimal, a_decimal = sniff_decimal(expected, e_delim, e_quote), sniff_decimal(actual, a_delim, a_quote)
     if rules.for_output(output).key:
-        e_df = _read_whole(expected, e_delim, e_quote)
-        a_df = _read_whole(actual, a_delim, a_quote)
+        e_df = _read_whole(expected, e_delim, e_quote, e_decimal)
+        a_df = _read_whole(actual, a_delim, a_quote, a_decimal)
         return compare_keyed_frames(output, e_df, a_df, rules, (expected.label, actual.label))
     judges: list[ColumnJudge] = []
     e_rows = a_rows = 0
     compared: list[str] = []
     e_at: list[int] = []
     a_at: list[int] = []
-    with _Ahead(_chunks(expected, e_delim, e_quote)) as e_iter, _Ahead(_chunks(actual, a_delim, a_quote)) as a_iter:
+    with _Ahead(_chunks(expected, e_delim, e_quote, e_decimal)) as e_iter, \
+            _Ahead(_chunks(actual, a_delim, a_quote, a_decimal)) as a_iter:
         first = True
         while True:
             e_chunk, a_chunk = e_iter.next(), a_iter.next()
@@ -260,11 +288,11 @@ def _judge_wide(judges: list[ColumnJudge], wheres: list[Where], e: _Apart, a: _A
                 feed_numeric_block([judges[k] for k in ks], e_block, a_block, [wheres[k] for k in ks])
 
 
-def _read_whole(src: Source, delim: str, quote: str) -> Any:
+def _read_whole(src: Source, delim: str, quote: str, decimal: str) -> Any:
     import pandas as pd
 
     try:
-        return _reader(src, delim, quote, None)
+        return _reader(src, delim, quote, None, decimal)
     except pd.errors.ParserError as exc:
         raise UnreadableOutput(f"not a readable table: {_first_line(exc)}", src.label) from None
 
