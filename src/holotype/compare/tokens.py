@@ -20,6 +20,9 @@ NUMBER = re.compile(
 MARK = "\x00"
 _SPACE = re.compile(r"\s+")
 _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
+_SEP = "\x01"
+_LEADING_ZERO = re.compile(_SEP + r"[-+]?0\d")  # a number token that starts with a zero and another digit
+_EXACT = 2.0 ** 53
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
 TIMELIKE = re.compile(
@@ -33,16 +36,19 @@ TIMELIKE = re.compile(
 
 
 def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[str]]:
-    """The text's shape and its numbers' texts (see the module text)."""
+    """The text's shape and its numbers' texts (see the module text). Leading zeros belong to the shape:
+    in '1,05' or '12:05' they place the digits, so '1,05' and '1,5' must not become the same numbers."""
     numbers: list[str] = []
 
     def keep(m: re.Match[str]) -> str:
+        numbers.append(m.group(0))
+        return MARK
+
+    def keep_zeros(m: re.Match[str]) -> str:
         token = m.group(0)
         sign = token[:1] if token[:1] in "+-" else ""
         body = token[len(sign):]
         if len(body) > 1 and body[0] == "0" and body[1].isdigit():
-            # leading zeros belong to the shape: in '1,05' or '12:05' they place the digits, so '1,05' and
-            # '1,5' must not become the same numbers (1 and 5)
             digits = body.lstrip("0")
             if not digits[:1].isdigit():
                 digits = "0" + digits  # '000' or '00.5': keep the zero the number needs
@@ -51,7 +57,12 @@ def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[st
         numbers.append(token)
         return MARK
 
+    # keep() stays short for the common case; only a text with a number that starts with a zero ('05',
+    # '-007') is split again with keep_zeros (one search over the numbers found decides)
     shape = NUMBER.sub(keep, text)
+    if numbers and _LEADING_ZERO.search(_SEP + _SEP.join(numbers)):
+        numbers.clear()
+        shape = NUMBER.sub(keep_zeros, text)
     if not exact_space:
         shape = _SPACE.sub(" ", shape).strip()
     return shape, numbers
@@ -60,16 +71,28 @@ def split_numbers(text: str, *, exact_space: bool = False) -> tuple[str, list[st
 def exact_number(token: str) -> float | int:
     """A number token as a float, or as an int where it is an integer binary64 would round (beyond 2**53),
     written as one ('1234567890123456789', or with a zero fraction: '1234567890123456789.0')."""
-    if len(token) > 15 and _INTEGER.fullmatch(token):
+    # cheap tests first: a float's text (17 significant digits) ends in a non-zero digit after its point
+    if len(token) > 15 and (token[-1] == "0" or "." not in token) and _INTEGER.fullmatch(token):
         value = int(token.partition(".")[0])
         if abs(value) > 2 ** 53:
             return value
     return float(token)
 
 
+def numbers_of(tokens: list[str]) -> list[float | int]:
+    """Number tokens as floats, with an integer beyond 2**53 kept exact (only tokens that large are looked at
+    again, so ordinary numbers cost one float() each)."""
+    values: list[float | int] = list(map(float, tokens))
+    if values:
+        top = max(map(abs, values))
+        if top >= _EXACT or top != top:  # a NaN hides what follows it from max()
+            values = [exact_number(t) if not abs(v) < _EXACT else v for t, v in zip(tokens, values)]
+    return values
+
+
 def number_array(values: list[float | int]) -> np.ndarray:
     """Numbers from text as an array: float64, or objects where an integer must stay exact."""
-    exact = any(isinstance(v, int) for v in values)
+    exact = int in set(map(type, values))
     return np.array(values, dtype=object if exact else np.float64)
 
 
@@ -79,7 +102,7 @@ def embedded_numbers(expected: str, actual: str) -> tuple[list[float | int], lis
     a_shape, a_nums = split_numbers(actual)
     if e_shape != a_shape or len(e_nums) != len(a_nums) or not e_nums:
         return None
-    return [exact_number(x) for x in e_nums], [exact_number(y) for y in a_nums]
+    return numbers_of(e_nums), numbers_of(a_nums)
 
 
 def only_time_differs(expected: str, actual: str) -> bool:

@@ -14,7 +14,7 @@ from holotype.compare.formats import register
 from holotype.compare.judge import ColumnJudge
 from holotype.compare.outcome import Outcome
 from holotype.compare.source import Source
-from holotype.compare.tokens import exact_number, number_array, only_time_differs, split_numbers
+from holotype.compare.tokens import number_array, numbers_of, only_time_differs, split_numbers
 from holotype.errors import UnreadableOutput
 from holotype.tolerance import RuleBook, Tolerance
 
@@ -66,10 +66,9 @@ def _judge_lines(e_lines: list[tuple[int, str]], a_lines: list[tuple[int, str]],
             continue
         if not e_nums:
             judge_.exact(True, f"{where_prefix}line {n}", el, al)
-        for k, (x, y) in enumerate(zip(e_nums, a_nums), start=1):
-            e_vals.append(exact_number(x))
-            a_vals.append(exact_number(y))
-            where.append(f"{where_prefix}line {n}, number {k}")
+        e_vals += numbers_of(e_nums)
+        a_vals += numbers_of(a_nums)
+        where += [f"{where_prefix}line {n}, number {k}" for k in range(1, len(e_nums) + 1)]
     if e_vals:
         judge_.numeric(number_array(e_vals), number_array(a_vals), where.__getitem__)
     return judge_, unequal
