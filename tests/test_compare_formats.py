@@ -618,3 +618,16 @@ def test_the_decimal_comma_reader_is_correctly_rounded() -> None:
     assert sniff_decimal(src, ";", '"') == ","
     parsed = next(_chunks(src, ";", '"', ","))["v"].to_numpy()
     assert np.array_equal(parsed, np.array([float(f"{v:.17g}") for v in x]))
+
+
+def test_json_numbers_beyond_binary64_are_compared_as_written(tmp_path: Path) -> None:
+    # float('1e400') and float('1e401') are both infinity (IEEE 754 overflow): before, they compared equal
+    assert float("1e400") == float("1e401") == math.inf
+    write(tmp_path / "e.json", '{"x": 1e400, "y": 2.5}')
+    write(tmp_path / "a.json", '{"x": 1e401, "y": 2.5}')
+    write(tmp_path / "b.json", '{"x": 1e400, "y": 2.5}\n')
+    result = run_cli("compare", tmp_path / "e.json", tmp_path / "a.json")
+    assert result.code == 1 and "1E+400 recorded, 1E+401 found" in result.out, result.out
+    assert run_cli("compare", tmp_path / "e.json", tmp_path / "b.json", "--quiet").code == 0
+    write(tmp_path / "huge.json", '{"x": 1e999999999, "y": 2.5}')  # no giant integer is ever built
+    assert run_cli("compare", tmp_path / "e.json", tmp_path / "huge.json", "--quiet").code == 1

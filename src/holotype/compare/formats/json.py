@@ -7,7 +7,9 @@ lists the last index is kept (`loadings[*][2]`), so a matrix column is one unit,
 from __future__ import annotations
 
 import json
+import math
 import re
+from decimal import Decimal
 from fnmatch import fnmatchcase
 from typing import Any
 
@@ -34,6 +36,13 @@ def _no_duplicates(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
     return out
 
 
+def _json_float(text: str) -> float | Decimal:
+    """A JSON number with a fraction or exponent: a float, unless binary64 cannot hold it ('1e400' would be
+    infinity, and so would '1e401'): then the number as written, compared exactly."""
+    value = float(text)
+    return Decimal(text) if math.isinf(value) else value
+
+
 def load_json(src: Source) -> Any:
     """Parse strictly: UTF-8, no duplicate keys (NaN and Infinity literals, as Python writes them, are allowed)."""
     raw = src.read_bytes()
@@ -42,7 +51,7 @@ def load_json(src: Source) -> Any:
     except UnicodeDecodeError as exc:
         raise UnreadableOutput(f"not UTF-8 text (byte {exc.start})", src.label) from None
     try:
-        return json.loads(text, object_pairs_hook=_no_duplicates)
+        return json.loads(text, object_pairs_hook=_no_duplicates, parse_float=_json_float)
     except json.JSONDecodeError as exc:
         raise UnreadableOutput(f"invalid JSON: {exc.msg} at line {exc.lineno}, column {exc.colno}",
                                src.label) from None
