@@ -631,3 +631,34 @@ def test_json_numbers_beyond_binary64_are_compared_as_written(tmp_path: Path) ->
     assert run_cli("compare", tmp_path / "e.json", tmp_path / "b.json", "--quiet").code == 0
     write(tmp_path / "huge.json", '{"x": 1e999999999, "y": 2.5}')  # no giant integer is ever built
     assert run_cli("compare", tmp_path / "e.json", tmp_path / "huge.json", "--quiet").code == 1
+
+
+def test_numbers_in_text_beyond_binary64_are_told_apart(tmp_path: Path) -> None:
+    write(tmp_path / "e.txt", "upper bound 1e400, mean 2.5\n")
+    write(tmp_path / "a.txt", "upper bound 1e401, mean 2.5\n")
+    write(tmp_path / "b.txt", "upper bound 1e999999999, mean 2.5\n")  # too big to build: infinity, as before
+    assert run_cli("compare", tmp_path / "e.txt", tmp_path / "a.txt", "--quiet").code == 1
+    assert run_cli("compare", tmp_path / "e.txt", tmp_path / "e.txt", "--quiet").code == 0
+    assert run_cli("compare", tmp_path / "b.txt", tmp_path / "b.txt", "--quiet").code == 0
+
+
+def test_json_integers_beyond_binary64_range_compare_without_an_internal_error(tmp_path: Path) -> None:
+    # before, converting 10**400 for the comparison raised OverflowError: an internal error, exit 2
+    write(tmp_path / "e.json", json.dumps({"n": 10 ** 400, "m": -(10 ** 400)}))
+    write(tmp_path / "a.json", json.dumps({"n": 10 ** 400 + 1, "m": -(10 ** 400)}))
+    result = run_cli("compare", tmp_path / "e.json", tmp_path / "a.json", "--rtol", "0", "--atol", "0")
+    assert result.code == 1 and "Traceback" not in result.err and "internal error" not in result.err, result.err
+    assert run_cli("compare", tmp_path / "e.json", tmp_path / "a.json", "--quiet").code == 0  # within rtol
+
+
+def test_the_format_registry_loads_every_format_even_after_one_was_imported_directly() -> None:
+    # before, importing one format module first left the others unregistered (the lazy load saw a
+    # non-empty registry): a JSON file was then compared by bytes
+    import subprocess
+    import sys
+
+    code = ("import holotype.compare.formats.table\n"
+            "from holotype.compare import formats\n"
+            "assert {'csv', 'json', 'numpy', 'text', 'parquet', 'image'} <= set(formats.names()), formats.names()\n")
+    done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
+    assert done.returncode == 0, done.stderr

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from fractions import Fraction
 from typing import Any
 
 import numpy as np
@@ -74,7 +75,7 @@ def _float_of(value: Any) -> float:
     try:
         return float(value)
     except OverflowError:  # an integer beyond binary64's range: its sign and magnitude as infinity
-        return math.copysign(math.inf, value)
+        return math.inf if value > 0 else -math.inf  # copysign would convert the integer, and overflow too
 
 
 def as_binary64(values: np.ndarray) -> np.ndarray:
@@ -90,7 +91,8 @@ class IntegerGaps:
 
     at: np.ndarray  # positions
     abs_err: np.ndarray
-    rel_err: np.ndarray
+    rel_err: np.ndarray  # never 0: a difference below binary64's range is its smallest number
+    exact: list[tuple[int, int]]  # (|a - e|, |e|) as integers, for the tolerance test
 
 
 def integer_gaps(expected: np.ndarray, actual: np.ndarray, e64: np.ndarray, a64: np.ndarray,
@@ -112,6 +114,7 @@ def integer_gaps(expected: np.ndarray, actual: np.ndarray, e64: np.ndarray, a64:
     at: list[int] = []
     abs_err: list[float] = []
     rel_err: list[float] = []
+    exact: list[tuple[int, int]] = []
     for k in differ.tolist():
         x, y = ec[k], ac[k]
         try:
@@ -121,10 +124,27 @@ def integer_gaps(expected: np.ndarray, actual: np.ndarray, e64: np.ndarray, a64:
         gap = abs(yi - xi)
         at.append(int(cand[k]))
         abs_err.append(_float_of(gap))
-        rel_err.append(gap / abs(xi) if xi else _float_of(gap))
+        rel_err.append(max(gap / abs(xi), _TINY) if xi else _float_of(gap))
+        exact.append((gap, abs(xi)))
     if not at:
         return None
-    return IntegerGaps(np.array(at, dtype=np.int64), np.array(abs_err), np.array(rel_err))
+    return IntegerGaps(np.array(at, dtype=np.int64), np.array(abs_err), np.array(rel_err), exact)
+
+
+_TINY = 5e-324  # the smallest positive binary64 number
+
+
+def _meets(gap: int, size: int, tol: Tolerance) -> bool:
+    """Whether integers `gap` apart, the recorded one of magnitude `size`, meet `tol`, in exact arithmetic."""
+    if tol.exact:
+        return False
+    if tol.atol is not None and Fraction(gap) <= Fraction(tol.atol):
+        return True
+    if tol.rtol is not None and gap <= Fraction(tol.rtol) * size:
+        return True
+    if tol.ulps is not None and tol.ulps >= 1:
+        return True
+    return tol.digits is not None and size > 0 and min(math.log10(size) - math.log10(gap), MAX_LRE) >= tol.digits
 
 
 def settle_gaps(verdict: Verdict, gaps: IntegerGaps | None, tol: Tolerance) -> Verdict:
@@ -132,20 +152,9 @@ def settle_gaps(verdict: Verdict, gaps: IntegerGaps | None, tol: Tolerance) -> V
     and lie at least one binary64 step apart."""
     if gaps is None:
         return verdict
-    rel = gaps.rel_err
-    ok = np.zeros(rel.shape, dtype=bool)
-    if not tol.exact:
-        if tol.atol is not None:
-            ok |= gaps.abs_err <= tol.atol
-        if tol.rtol is not None:
-            ok |= rel <= tol.rtol
-        if tol.ulps is not None and tol.ulps >= 1:
-            ok[:] = True
-        if tol.digits is not None:
-            with np.errstate(divide="ignore"):
-                ok |= np.clip(-np.log10(rel), 0.0, MAX_LRE) >= tol.digits
+    ok = np.array([_meets(gap, size, tol) for gap, size in gaps.exact], dtype=bool)
     passed, abs_err, rel_err = verdict.passed.copy(), verdict.abs_err.copy(), verdict.rel_err.copy()
-    passed[gaps.at], abs_err[gaps.at], rel_err[gaps.at] = ok, gaps.abs_err, rel
+    passed[gaps.at], abs_err[gaps.at], rel_err[gaps.at] = ok, gaps.abs_err, gaps.rel_err
     return Verdict(passed, abs_err, rel_err, verdict.all_finite and bool(np.isfinite(gaps.abs_err).all()))
 
 

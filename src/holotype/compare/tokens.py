@@ -9,7 +9,9 @@ unequal string, and `to_string()` padding that shifted because a sign appeared i
 
 from __future__ import annotations
 
+import math
 import re
+from decimal import Decimal
 
 import numpy as np
 
@@ -23,6 +25,7 @@ _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 _SEP = "\x01"
 _LEADING_ZERO = re.compile(_SEP + r"[-+]?0\d")  # a number token that starts with a zero and another digit
 _EXACT = 2.0 ** 53
+_BUILT_DIGITS = 4300  # the most digits an integer from text may have (Python's own int() limit)
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
 TIMELIKE = re.compile(
@@ -76,7 +79,15 @@ def exact_number(token: str) -> float | int:
         value = int(token.partition(".")[0])
         if abs(value) > 2 ** 53:
             return value
-    return float(token)
+    number = float(token)
+    lead = token.lstrip("+-")[:1]
+    if math.isinf(number) and (lead.isdigit() or lead == "."):
+        # a finite number beyond binary64 ('1e400' and '1e401' would both be infinity): the integer it names,
+        # when that integer is of a size to build (not '1e999999999')
+        exact = Decimal(token)
+        if exact.adjusted() <= _BUILT_DIGITS:
+            return int(exact)
+    return number
 
 
 def numbers_of(tokens: list[str]) -> list[float | int]:

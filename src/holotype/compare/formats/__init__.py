@@ -43,10 +43,14 @@ def register(comparer: FormatComparer) -> FormatComparer:
     return comparer
 
 
+_loaded: list[bool] = []  # every module imported once (one imported directly registers only itself)
+
+
 def _load() -> None:
-    if not _BY_NAME:
+    if not _loaded:
         for module in _MODULES:
             importlib.import_module(f"holotype.compare.formats.{module}")
+        _loaded.append(True)
 
 
 def by_name(name: str) -> FormatComparer | None:
