@@ -6,6 +6,7 @@ import math
 import os
 from collections.abc import Callable
 from dataclasses import replace
+from decimal import Decimal
 from pathlib import Path
 
 from holotype.compare import formats
@@ -25,6 +26,8 @@ def _fmt(x: float) -> str:
 def _value(v: object) -> str:
     if isinstance(v, float):
         return repr(v)
+    if isinstance(v, int) and not isinstance(v, bool) and abs(v) >= 10 ** 30:
+        return f"{Decimal(v):.20e}"  # an integer of hundreds of digits, shown to 21 of them
     return repr(v) if isinstance(v, str) else str(v)
 
 

@@ -25,7 +25,7 @@ _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 _SEP = "\x01"
 _LEADING_ZERO = re.compile(_SEP + r"[-+]?0\d")  # a number token that starts with a zero and another digit
 _EXACT = 2.0 ** 53
-_BUILT_DIGITS = 4300  # the most digits an integer from text may have (Python's own int() limit)
+_BUILT_DIGITS = 4000  # digits an integer from text may have: under Python's 4,300-digit limit for printing it
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
 TIMELIKE = re.compile(
