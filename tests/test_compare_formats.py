@@ -662,3 +662,14 @@ def test_the_format_registry_loads_every_format_even_after_one_was_imported_dire
             "assert {'csv', 'json', 'numpy', 'text', 'parquet', 'image'} <= set(formats.names()), formats.names()\n")
     done = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True)
     assert done.returncode == 0, done.stderr
+
+
+@pytest.mark.parametrize("suffix", ["csv", "txt"])
+def test_an_integer_of_thousands_of_digits_is_no_internal_error(tmp_path: Path, suffix: str) -> None:
+    # Python refuses int() of more than 4,300 digits (CVE-2020-10735): such a token stays a float (infinity)
+    big = "9" * 5000
+    body = (lambda v: f"id,v\n{v},1\nNA,2\n") if suffix == "csv" else (lambda v: f"n = {v}\n")
+    write(tmp_path / f"e.{suffix}", body(big))
+    write(tmp_path / f"a.{suffix}", body(big[:-1] + "8"))
+    result = run_cli("compare", tmp_path / f"e.{suffix}", tmp_path / f"a.{suffix}")
+    assert result.code in (0, 1) and "internal error" not in result.err, result.err

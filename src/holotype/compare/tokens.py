@@ -75,7 +75,7 @@ def exact_number(token: str) -> float | int:
     """A number token as a float, or as an int where it is an integer binary64 would round (beyond 2**53),
     written as one ('1234567890123456789', or with a zero fraction: '1234567890123456789.0')."""
     # cheap tests first: a float's text (17 significant digits) ends in a non-zero digit after its point
-    if len(token) > 15 and (token[-1] == "0" or "." not in token) and _INTEGER.fullmatch(token):
+    if 15 < len(token) <= _BUILT_DIGITS and (token[-1] == "0" or "." not in token) and _INTEGER.fullmatch(token):
         value = int(token.partition(".")[0])
         if abs(value) > 2 ** 53:
             return value
