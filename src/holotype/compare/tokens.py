@@ -15,6 +15,8 @@ from decimal import Decimal
 
 import numpy as np
 
+from holotype.compare.numbers import EXACT_INTEGERS
+
 NUMBER = re.compile(
     r"(?<![A-Za-z0-9_.])[-+]?(?:(?:\d+\.\d*|\.\d+|\d+)(?:[eE][-+]?\d+)?|inf(?:inity)?|nan)(?![A-Za-z0-9_])",
     re.IGNORECASE,
@@ -24,7 +26,6 @@ _SPACE = re.compile(r"\s+")
 _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 _SEP = "\x01"
 _LEADING_ZERO = re.compile(_SEP + r"[-+]?0\d")  # a number token that starts with a zero and another digit
-_EXACT = 2.0 ** 53
 _BUILT_DIGITS = 4000  # digits an integer from text may have: under Python's 4,300-digit limit for printing it
 
 # Dates, clock times and durations, as reports print them (used only to explain a failure, never to pass one)
@@ -77,7 +78,7 @@ def exact_number(token: str) -> float | int:
     # cheap tests first: a float's text (17 significant digits) ends in a non-zero digit after its point
     if 15 < len(token) <= _BUILT_DIGITS and (token[-1] == "0" or "." not in token) and _INTEGER.fullmatch(token):
         value = int(token.partition(".")[0])
-        if abs(value) > 2 ** 53:
+        if abs(value) > EXACT_INTEGERS:
             return value
     number = float(token)
     lead = token.lstrip("+-")[:1]
@@ -96,8 +97,8 @@ def numbers_of(tokens: list[str]) -> list[float | int]:
     values: list[float | int] = list(map(float, tokens))
     if values:
         top = max(map(abs, values))
-        if top >= _EXACT or top != top:  # a NaN hides what follows it from max()
-            values = [exact_number(t) if not abs(v) < _EXACT else v for t, v in zip(tokens, values)]
+        if top >= EXACT_INTEGERS or top != top:  # a NaN hides what follows it from max()
+            values = [exact_number(t) if not abs(v) < EXACT_INTEGERS else v for t, v in zip(tokens, values)]
     return values
 
 
