@@ -673,3 +673,22 @@ def test_an_integer_of_thousands_of_digits_is_no_internal_error(tmp_path: Path, 
     write(tmp_path / f"a.{suffix}", body(big[:-1] + "8"))
     result = run_cli("compare", tmp_path / f"e.{suffix}", tmp_path / f"a.{suffix}")
     assert result.code in (0, 1) and "internal error" not in result.err, result.err
+
+
+@pytest.mark.parametrize("width", [1, 80])
+def test_a_big_integer_column_read_as_numbers_on_one_side_and_text_on_the_other_is_exact(
+        tmp_path: Path, width: int) -> None:
+    # the recorded column is all integers; the new one holds an 'NA', so it is text: before, the recorded
+    # side went in as doubles and an identifier moved by one passed (narrow and wide paths alike)
+    names = ",".join(["id"] + [f"c{i}" for i in range(width)])
+    rest = ",".join(str(i * 0.5) for i in range(width))
+    write(tmp_path / "e.csv", f"{names}\n{BIG},{rest}\n{BIG + 10},{rest}\n")
+    write(tmp_path / "a.csv", f"{names}\n{BIG - 1},{rest}\nNA,{rest}\n")
+    result = run_cli("compare", tmp_path / "e.csv", tmp_path / "a.csv", "--rtol", "0", "--atol", "0")
+    assert result.code == 1 and f"2 of {2 + 2 * width} values outside tolerance" in result.out, result.out
+    assert f"{BIG} recorded, {BIG - 1} found" in result.out
+    # a numeric cell against a text cell is shown as written, not as NumPy's repr of a double
+    write(tmp_path / "n.csv", f"{names}\n5,{rest}\n6,{rest}\n")
+    write(tmp_path / "t.csv", f"{names}\nfive,{rest}\n6,{rest}\n")
+    shown = run_cli("compare", tmp_path / "n.csv", tmp_path / "t.csv")
+    assert shown.code == 1 and "5 recorded, 'five' found" in shown.out and "np." not in shown.out, shown.out

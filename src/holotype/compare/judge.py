@@ -33,8 +33,11 @@ class ColumnJudge:
         """A chunk of cells of any kind: numbers numerically, text and missing values exactly."""
         e_num, e_kind, e_obj = column_arrays(expected)
         a_num, a_kind, a_obj = column_arrays(actual)
-        if e_kind is None and a_kind is None:  # integers go in as they are: beyond 2**53 they are judged exactly
-            self.numeric(_integers_kept(expected, e_num), _integers_kept(actual, a_num), where)
+        # integers go in as they are (beyond 2**53 they are judged exactly), and so does a numeric column's cell
+        # shown in a message
+        e_exact, a_exact = _integers_kept(expected, e_num), _integers_kept(actual, a_num)
+        if e_kind is None and a_kind is None:
+            self.numeric(e_exact, a_exact, where)
             return
         n = e_num.shape[0]
         ek = e_kind if e_kind is not None else np.zeros(n, dtype=np.int8)
@@ -42,7 +45,7 @@ class ColumnJudge:
         both_num = (ek == NUMBER) & (ak == NUMBER)
         idx = np.where(both_num)[0]
         if idx.size:
-            self.numeric(_exact_cells(e_num, e_obj, idx), _exact_cells(a_num, a_obj, idx),
+            self.numeric(_exact_cells(e_exact, e_obj, idx), _exact_cells(a_exact, a_obj, idx),
                          lambda i: where(int(idx[i])))
         inside_e: list[float | int] = []
         inside_a: list[float | int] = []
@@ -61,8 +64,8 @@ class ColumnJudge:
                     continue
             else:
                 equal = False
-            e_val = "(missing)" if ek[i] == MISSING else (e_obj[i] if e_obj is not None else e_num[i])
-            a_val = "(missing)" if ak[i] == MISSING else (a_obj[i] if a_obj is not None else a_num[i])
+            e_val = "(missing)" if ek[i] == MISSING else (e_obj[i] if e_obj is not None else e_exact[i].item())
+            a_val = "(missing)" if ak[i] == MISSING else (a_obj[i] if a_obj is not None else a_exact[i].item())
             self.exact(equal, where(i), e_val, a_val)
         if inside_e:
             self.numeric(number_array(inside_e), number_array(inside_a), inside_where.__getitem__)
@@ -104,9 +107,10 @@ class ColumnJudge:
 
 
 def _exact_cells(numbers: np.ndarray, cells: np.ndarray | None, idx: np.ndarray) -> np.ndarray:
-    """The numbers at `idx`, with the cells beyond 2**53 read again as written (an integer stays exact)."""
+    """The numbers at `idx` (integers as they are), with text cells beyond 2**53 read again as written (an
+    integer stays exact)."""
     picked: np.ndarray = numbers[idx]
-    if cells is None:
+    if cells is None or picked.dtype.kind != "f":
         return picked
     with np.errstate(invalid="ignore"):
         big = np.flatnonzero(np.abs(picked) >= EXACT_INTEGERS)

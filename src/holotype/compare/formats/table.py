@@ -257,9 +257,10 @@ class _Apart:
         return values
 
     def column(self, at: int) -> np.ndarray:
-        """One column as the narrow path gives it: numbers as float64, anything else as it came."""
-        values: np.ndarray = self.whole[:, at]
-        return values.astype(np.float64) if self.numeric[at] else values
+        """One column as the narrow path gives it: numbers as pandas read them (the 2-D conversion may have
+        rounded integers to doubles), anything else as it came."""
+        values: np.ndarray = self.read(at) if self.numeric[at] else self.whole[:, at]
+        return values
 
 
 def _judge_wide(judges: list[ColumnJudge], wheres: list[Where], e: _Apart, a: _Apart,
