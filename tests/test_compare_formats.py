@@ -608,14 +608,14 @@ def test_a_semicolon_table_with_decimal_commas_is_read_as_numbers(tmp_path: Path
 
 def test_the_decimal_comma_reader_is_correctly_rounded() -> None:
     # Python's float() is correctly rounded (IEEE 754 round-to-nearest); so must the comma reader be
-    from holotype.compare.formats.table import _chunks, sniff_decimal
+    from holotype.compare.formats.table import _chunks, sniff_table
     from holotype.compare.source import Source
 
     rng = np.random.default_rng(12)
     x = rng.standard_normal(5_000) * 10.0 ** rng.integers(-300, 300, 5_000)
     text = "i;v\n" + "\n".join(f"{i};{v:.17g}".replace(".", ",") for i, v in enumerate(x)) + "\n"
     src = Source.from_bytes(text.encode(), "t.csv", "t.csv")
-    assert sniff_decimal(src, ";", '"') == ","
+    assert sniff_table(src) == (";", '"', ",")
     parsed = next(_chunks(src, ";", '"', ","))["v"].to_numpy()
     assert np.array_equal(parsed, np.array([float(f"{v:.17g}") for v in x]))
 

@@ -37,34 +37,36 @@ HEADER_LIMIT = 64 << 20  # bytes of the header line read to count the columns
 AHEAD = 2  # chunks parsed ahead per file: memory holds at most this many more per file
 
 
-def sniff_dialect(src: Source) -> tuple[str, str]:
-    """(delimiter, quote character): tab for .tsv, otherwise sniffed from the first 64 KiB."""
-    if src.name.lower().endswith((".tsv", ".tab")):
-        return "\t", '"'
-    head = src.head(65536).decode("utf-8-sig", "replace")
-    lines = head.splitlines()
-    sample = "\n".join(lines[:50])
-    try:
-        dialect = csv.Sniffer().sniff(sample, delimiters=",\t;|")
-        return dialect.delimiter, dialect.quotechar or '"'
-    except csv.Error:
-        return ",", '"'
-
-
 _COMMA_DECIMAL = re.compile(r"\s*[+-]?\d+,\d+(?:[eE][+-]?\d+)?\s*")
 _POINT_DECIMAL = re.compile(r"\s*[+-]?\d*\.\d+(?:[eE][+-]?\d+)?\s*")
 
 
-def sniff_decimal(src: Source, delimiter: str, quote: str) -> str:
-    """The decimal mark: ',' where a table not delimited by commas writes its numbers so ('1,5' in a
-    semicolon-separated export) and none of them with a point; '.' otherwise."""
+def sniff_table(src: Source) -> tuple[str, str, str]:
+    """(delimiter, quote character, decimal mark) from the first 64 KiB, read once: tab for .tsv, else
+    sniffed; the decimal mark is ',' where a table not delimited by commas writes its numbers so ('1,5' in
+    a semicolon-separated export) and none of them with a point. An empty table is refused."""
+    head = src.head(65536).decode("utf-8-sig", "replace")
+    if not head.strip():
+        raise UnreadableOutput("empty table (no header row)", src.label)
+    lines = head.splitlines()
+    delimiter, quote = ",", '"'
+    if src.name.lower().endswith((".tsv", ".tab")):
+        delimiter = "\t"
+    else:
+        try:
+            dialect = csv.Sniffer().sniff("\n".join(lines[:50]), delimiters=",\t;|")
+            delimiter, quote = dialect.delimiter, dialect.quotechar or '"'
+        except csv.Error:
+            pass
+    return delimiter, quote, _decimal_mark(lines[1:51], delimiter, quote)  # the rows below the header
+
+
+def _decimal_mark(rows: list[str], delimiter: str, quote: str) -> str:
     if delimiter == ",":
         return "."
-    head = src.head(65536).decode("utf-8-sig", "replace")
-    lines = head.splitlines()[1:51]  # below the header
     comma = point = 0
     try:
-        for row in csv.reader(lines, delimiter=delimiter, quotechar=quote):
+        for row in csv.reader(rows, delimiter=delimiter, quotechar=quote):
             for cell in row:
                 if _COMMA_DECIMAL.fullmatch(cell):
                     comma += 1
@@ -185,12 +187,8 @@ def _row_where(offset: int, col: str) -> Any:
 def compare_tables(output: str, expected: Source, actual: Source, rules: RuleBook) -> Outcome:
     """Compare two delimited tables with a header row."""
     outcome = Outcome()
-    e_delim, e_quote = sniff_dialect(expected)
-    a_delim, a_quote = sniff_dialect(actual)
-    for src in (expected, actual):
-        if not src.head(65536).decode("utf-8-sig", "replace").strip():
-            raise UnreadableOutput("empty table (no header row)", src.label)
-    e_decimal, a_decimal = sniff_decimal(expected, e_delim, e_quote), sniff_decimal(actual, a_delim, a_quote)
+    e_delim, e_quote, e_decimal = sniff_table(expected)
+    a_delim, a_quote, a_decimal = sniff_table(actual)
     if rules.for_output(output).key:
         e_df = _read_whole(expected, e_delim, e_quote, e_decimal)
         a_df = _read_whole(actual, a_delim, a_quote, a_decimal)
