@@ -88,6 +88,10 @@ def _kept(rel: str) -> bool:
     return not (tail in INSTALLER_MARKS and head.endswith(".dist-info"))
 
 
+def _identity_text(st: os.stat_result) -> str:
+    return f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"
+
+
 def _record_stamp(dist_info: Path) -> str | None:
     """The identity of a package's RECORD (which decides its listing); None when it cannot be read, or
     changed a moment ago (its times may be shared with the next write)."""
@@ -97,7 +101,7 @@ def _record_stamp(dist_info: Path) -> str | None:
         return None
     if time.time_ns() - max(st.st_mtime_ns, st.st_ctime_ns) <= RACY_SECONDS * 1e9:
         return None
-    return f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"
+    return _identity_text(st)
 
 
 def _unchanged(dist_info: Path, known: str | None) -> InstalledFiles | None:
@@ -128,7 +132,7 @@ def cached_listing(dist_info: Path, cache: DigestCache | None) -> list[Listed] |
         st = os.stat(dist_info / "RECORD")
     except OSError:
         return None
-    stamp = f"{st.st_dev}:{st.st_ino}:{st.st_size}:{st.st_mtime_ns}:{st.st_ctime_ns}"  # as _record_stamp
+    stamp = _identity_text(st)
     key = f"listing:{dist_info}"
     known = cache.fact(key)
     if known:

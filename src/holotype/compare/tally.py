@@ -99,6 +99,7 @@ class Tally:
             "sign_flipped": self.sign_flipped,
         }
 
+
 def _lre(worst: np.ndarray) -> np.ndarray:
     """The least LRE of each column from its largest finite relative error: LRE falls as the relative error
     grows, so this is one log per column instead of one per value (exact scores MAX_LRE, NaN or inf 0)."""
