@@ -173,3 +173,35 @@ def test_a_configuration_that_cannot_be_read_starts_no_probe_and_the_command_say
     assert not head_start._probes
     result = run_cli("check", "-C", root)
     assert result.code == 2 and "holotype.toml" in result.err and "Traceback" not in result.err
+
+
+def test_check_as_typed_starts_the_noted_workers_before_holotype_loads(project: Path, taken: list[bool],
+                                                                       monkeypatch: pytest.MonkeyPatch) -> None:
+    # entry.py calls begin_early with the words after `check`, before the command framework is imported
+    head_start.begin_early(["--quiet", "-C", str(project)])
+    assert ahead_for(project)
+    assert findings(project) == (0, []) and taken == [True]
+    for args in (["--full", "-C", str(project)], ["-C"], ["--help"], ["--", "-C", str(project)]):
+        head_start.begin_early(args)
+        assert not ahead_for(project), args  # a whole-hash check takes no stamps; a half-typed line, nothing
+    head_start.begin_early([f"--project={project}"])
+    assert ahead_for(project)
+    head_start.finish()
+    monkeypatch.chdir(project / "data" / "east")  # no -C: the nearest folder with a configuration above
+    head_start.begin_early(["--strict"])
+    assert ahead_for(project)
+    head_start.finish()
+    assert not head_start._started
+
+
+def test_a_wrong_guess_of_the_project_costs_nothing_but_work(project: Path, taken: list[bool],
+                                                            monkeypatch: pytest.MonkeyPatch) -> None:
+    inner = project / "data" / "east" / "inner"
+    write(inner / "pyproject.toml", '[project]\nname = "not-a-holotype-project"\n')
+    monkeypatch.chdir(inner)
+    head_start.begin_early([])  # the nearest configuration-like file is not this project's: nothing noted there
+    assert not head_start._started
+    (project / "data" / "east" / "well00003.dat").write_bytes(b"changed before the early start\n")
+    head_start.begin_early(["-C", str(project)])
+    code, found = findings(project)
+    assert code == 1 and "data/east/well00003.dat" in [f["subject"] for f in found]

@@ -13,6 +13,10 @@ def main() -> None:
 
             print(f"holotype {__version__}")
             return
+        if sys.argv[1:2] == ["check"]:  # its stamp workers start while the rest of holotype loads
+            from holotype.capture.head_start import begin_early
+
+            begin_early(sys.argv[2:])
         from holotype.cli import main as cli_main
 
         cli_main()

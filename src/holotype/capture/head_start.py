@@ -159,6 +159,38 @@ def begin(project: Path) -> None:
     _started[root] = (requests, procs)
 
 
+def begin_early(args: list[str]) -> None:
+    """For `holotype check ARGS` as typed (before the command framework and the configuration are loaded):
+    start the workers the last check of its project asked for. The project is the folder -C/--project
+    names, else guessed cheaply as the nearest folder at or above this one with a holotype.toml or a
+    pyproject.toml. A wrong guess or a misread option costs only the work: the note must match that
+    folder's files, and the check adopts workers only for exactly its own requests. Anything not taken is
+    stopped at exit."""
+    given: str | None = None
+    for i, arg in enumerate(args):
+        if arg in ("--full", "--help", "-h", "--"):
+            return
+        if arg in ("-C", "--project"):
+            if i + 1 == len(args):
+                return
+            given = args[i + 1]
+        elif arg.startswith("--project="):
+            given = arg.partition("=")[2]
+        elif arg.startswith("-C") and len(arg) > 2:
+            given = arg[2:]
+    import atexit
+
+    atexit.register(finish)
+    if given is not None:
+        begin(Path(given))
+        return
+    here = os.getcwd()
+    for folder in (here, *(str(p) for p in Path(here).parents)):
+        if any(os.path.isfile(os.path.join(folder, name)) for name in _WATCHED[1:]):
+            begin(Path(folder))
+            return
+
+
 def take(root: str, requests: list[dict[str, Any]]) -> list[subprocess.Popen[bytes]] | None:
     """The workers started ahead for exactly these requests; None (and any started for others stopped)."""
     noted = _started.pop(root, None)
