@@ -7,6 +7,7 @@ behind the interpreter holotype itself runs on. Do not import holotype from here
 import json
 import os
 import platform
+import re
 import sys
 import sysconfig
 
@@ -72,18 +73,26 @@ def _top_level_names(dist):
         record = dist.read_text("RECORD") or ""
     except Exception:
         record = ""
+    heads = set()
     for row in record.splitlines():
+        head, slash, _ = row.partition("/")
+        if slash and "," not in head and '"' not in head and "\\" not in head:
+            heads.add(head)  # a file in folder `head`: most rows share it, so it is judged once below
+            continue
         path = row.rsplit(",", 2)[0].strip('"') if row.count(",") >= 2 else row
         parts = path.replace("\\", "/").split("/")
         first = parts[0]
-        if first.endswith((".dist-info", ".egg-info", ".data")) or first in ("..", "__pycache__", ""):
-            continue
         if len(parts) == 1:
             if first.endswith(".py"):
                 names.add(first[:-3])
             elif first.endswith((".so", ".pyd")):
                 names.add(first.split(".")[0])
-        elif first.isidentifier():
+        else:
+            heads.add(first)
+    for first in heads:
+        if first.endswith((".dist-info", ".egg-info", ".data")) or first in ("..", "__pycache__", ""):
+            continue
+        if first.isidentifier():
             names.add(first)
     return sorted(names)
 
@@ -120,12 +129,79 @@ def _search_path():
     return path
 
 
-def _distributions():
-    from importlib import metadata
+class _Found:
+    """A metadata folder found on the search path, read as importlib.metadata's PathDistribution reads it."""
 
+    def __init__(self, path):
+        self._path = path
+
+    def read_text(self, filename):
+        try:
+            with open(os.path.join(self._path, filename), encoding="utf-8") as fh:
+                return fh.read()
+        except (FileNotFoundError, IsADirectoryError, NotADirectoryError, PermissionError):
+            return None
+
+
+def _joined(root, child):
+    """str(pathlib.Path(root, child)), as importlib.metadata names the folder, without loading pathlib for
+    the usual plain absolute folder."""
+    if os.path.isabs(root) and root == os.path.normpath(root) and not root.startswith("//") \
+            and ".." not in root.split(os.sep):
+        return os.path.join(root, child)
+    import pathlib
+
+    return str(pathlib.Path(root, child))
+
+
+def _found_on(entry):
+    """The metadata folders importlib.metadata finds in one search-path folder, in its order (grouped by
+    normalised name, each group in listing order); None when the entry is not a plain folder (a zip
+    file, an .egg folder), which importlib.metadata itself then reads."""
+    if not isinstance(entry, str) or os.path.basename(entry).lower().endswith(".egg"):
+        return None
+    try:
+        children = os.listdir(entry or ".")
+    except OSError:
+        return None if os.path.isfile(entry) else []
+    groups = {}
+    for child in children:
+        low = child.lower()
+        if low.endswith((".dist-info", ".egg-info")):
+            name = low.rpartition(".")[0].partition("-")[0]
+            key = re.sub(r"[-_.]+", "-", name).lower().replace("-", "_")
+            groups.setdefault(key, []).append(child)
+    return [_Found(_joined(entry, child)) for group in groups.values() for child in group]
+
+
+def _discovered():
+    """Every distribution on the search path, as importlib.metadata.distributions would list them. Plain
+    folders are listed here (importing importlib.metadata costs more than the rest of the probe); the
+    standard library lists the rest, and everything when another finder on sys.meta_path lists
+    distributions of its own."""
+    from importlib.machinery import PathFinder
+
+    path = _search_path()
+    others = [f for f in sys.meta_path if f is not PathFinder and getattr(f, "find_distributions", None)]
+    if others:
+        from importlib import metadata
+
+        return list(metadata.distributions(path=path))
+    found = []
+    for entry in path:
+        here = _found_on(entry)
+        if here is None:
+            from importlib import metadata
+
+            here = list(metadata.distributions(path=[entry]))
+        found.extend(here)
+    return found
+
+
+def _distributions():
     seen = set()
     result = []
-    for dist in metadata.distributions(path=_search_path()):
+    for dist in _discovered():
         try:
             text = dist.read_text("METADATA") or dist.read_text("PKG-INFO") or ""
         except Exception:
