@@ -635,3 +635,15 @@ def test_zlib_of_the_bomb_really_is_large() -> None:
     # the bomb above is only a test if it would be large: 256 members of 16 MiB each (checked on one member)
     member = gzip.compress(b"\0" * (16 << 20), compresslevel=9, mtime=0)
     assert len(zlib.decompressobj(wbits=31).decompress(member)) == 16 << 20 and len(member) < 64 << 10
+
+
+@pytest.mark.parametrize("command", ["check", "record"])
+def test_a_current_folder_removed_under_the_shell_is_one_clear_line(tmp_path: Path, command: str) -> None:
+    # a shell left in a folder another window deleted: the command (its early start included) says so
+    gone = tmp_path / "gone"
+    gone.mkdir()
+    program = (f"import os, sys; os.chdir({str(gone)!r}); os.rmdir({str(gone)!r}); "
+               f"sys.argv = ['holotype', {command!r}]; from holotype.entry import main; main()")
+    proc = subprocess.run([sys.executable, "-c", program], capture_output=True, text=True, timeout=TIMEOUT)
+    assert proc.returncode == 2
+    one_line(proc.stderr, "current folder no longer exists")

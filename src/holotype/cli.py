@@ -88,8 +88,13 @@ class Session:
                 self._project = self.given if self.given is not None else Path(".")
             else:
                 from holotype.config import find_project
+                from holotype.errors import HolotypeError
 
-                here = Path.cwd()
+                try:
+                    here = Path.cwd()
+                except OSError:  # removed while a shell was still in it
+                    raise HolotypeError("the current folder no longer exists; change to the project folder or "
+                                        "pass -C DIR") from None
                 found = find_project(here)
                 if found != here:
                     self.say(f"project: {found}")

@@ -181,14 +181,17 @@ def begin_early(args: list[str]) -> None:
     import atexit
 
     atexit.register(finish)
-    if given is not None:
-        begin(Path(given))
-        return
-    here = os.getcwd()
-    for folder in (here, *(str(p) for p in Path(here).parents)):
-        if any(os.path.isfile(os.path.join(folder, name)) for name in _WATCHED[1:]):
-            begin(Path(folder))
+    try:
+        if given is not None:
+            begin(Path(given))
             return
+        here = os.getcwd()
+        for folder in (here, *(str(p) for p in Path(here).parents)):
+            if any(os.path.isfile(os.path.join(folder, name)) for name in _WATCHED[1:]):
+                begin(Path(folder))
+                return
+    except (OSError, ValueError):
+        return  # no folder here, or a name no path can hold: the command itself says what is wrong
 
 
 def take(root: str, requests: list[dict[str, Any]]) -> list[subprocess.Popen[bytes]] | None:
