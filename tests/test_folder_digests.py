@@ -167,9 +167,9 @@ def test_a_walked_file_digest_is_hashlibs(tmp_path: Path, size: int) -> None:
     digest, ident = digest_walked(str(path), identity_of(os.stat(path)), bytearray(CHUNK))
     assert digest == hashlib.sha256(body).hexdigest() and ident == identity_of(os.stat(path))
     row = ("f.bin", *identity_of(os.stat(path)))
-    assert digest_rows(str(tmp_path), 0, [row], {}, bytearray(CHUNK)) == ([digest], [size], [(ident, digest)])
+    assert digest_rows(str(tmp_path), 0, [row], {}, bytearray(CHUNK)) == ([digest], [ident], [(ident, digest)])
     # a file the cache knows by its identity is not read again
-    assert digest_rows(str(tmp_path), 0, [row], {ident: "0" * 64}, bytearray(CHUNK)) == (["0" * 64], [size], [])
+    assert digest_rows(str(tmp_path), 0, [row], {ident: "0" * 64}, bytearray(CHUNK)) == (["0" * 64], [ident], [])
 
 
 def test_a_walked_file_that_grew_is_read_to_its_end(tmp_path: Path) -> None:
@@ -179,10 +179,11 @@ def test_a_walked_file_that_grew_is_read_to_its_end(tmp_path: Path) -> None:
     path.write_bytes(b"abcdef" * 1000)  # grew after the walk saw it
     digest, ident = digest_walked(str(path), before, bytearray(CHUNK))
     assert digest == hashlib.sha256(b"abcdef" * 1000).hexdigest() and ident[2] == 6000
-    assert digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))[:2] == ([digest], [6000])
+    got = digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))
+    assert (got[0], [ident[2] for ident in got[1]]) == ([digest], [6000])
     path.write_bytes(b"ab")  # and shrank
-    assert digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))[:2] == (
-        [hashlib.sha256(b"ab").hexdigest()], [2])
+    got = digest_rows(str(tmp_path), 0, [("f.bin", *before)], {}, bytearray(CHUNK))
+    assert (got[0], [ident[2] for ident in got[1]]) == ([hashlib.sha256(b"ab").hexdigest()], [2])
 
 
 def test_a_walked_file_replaced_by_a_link_or_a_pipe_is_refused(tmp_path: Path) -> None:
@@ -278,3 +279,61 @@ def test_a_subfolder_that_is_a_link_now_is_declined(tmp_path: Path) -> None:
     walker = ProjectWalker(tmp_path / "proj")
     assert plain_rows(walker, "data/a") is None
     assert folder_digests.digest_subfolder(walker, "data/a", None, bytearray(CHUNK)) is None
+
+
+def test_a_workers_folder_entry_is_one_cache_row_and_a_later_change_is_hashed_alone(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    import sqlite3
+
+    from holotype.capture import data_folders, fingerprints
+
+    monkeypatch.setenv("HOLOTYPE_CACHE_DIR", str(tmp_path / "cache"))
+    root = tmp_path / "proj"
+    write(root / "holotype.toml", 'data = ["data"]\nseed = 1\n')
+    fill(root / "data" / "east", N)
+    fill(root / "data" / "west", N)
+    fill(root / "data" / "few", 3)  # listed one by one
+    import time
+
+    time.sleep(2.1)  # the cache remembers no file changed in the last two seconds
+    monkeypatch.setattr(project, "APART_MIN_FILES", 0)
+    taken, _ = spy_answers(monkeypatch)
+    hashed: list[int] = []
+    real = data_folders.fingerprint_data
+
+    def spy(*args: object, **kwargs: object) -> data_folders.DataResult:
+        got = real(*args, **kwargs)  # type: ignore[arg-type]
+        hashed.append(got.files_hashed)
+        return got
+
+    monkeypatch.setattr(project, "fingerprint_data", spy)
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    assert "data/east" in taken and hashed == [2 * N + 3]
+    inodes = {os.stat(p).st_ino: p.parent.name for p in (root / "data").rglob("*.dat")}
+    with sqlite3.connect(tmp_path / "cache" / "digests.sqlite3") as db:
+        rows = [inodes[ino] for (ino,) in db.execute("SELECT ino FROM digests") if ino in inodes]
+        folders = db.execute("SELECT count(*) FROM folder_files").fetchone()[0]
+    assert folders == 2  # one row per folder entry, none per file of it
+    assert rows == ["few"] * 3  # the files listed one by one have rows of their own
+    assert run_cli("record", "--no-run", "-C", root).code == 0
+    assert hashed[-1] == 0  # a second record knows every file, the workers' folders included
+    (root / "data" / "east" / "well00007.dat").write_bytes(b"changed\n")
+    counted: list[int] = []
+    real_hash = fingerprints._hash_all
+    monkeypatch.setattr(fingerprints, "_hash_all", lambda pending, *rest: counted.append(len(pending)) or real_hash(
+        pending, *rest))
+    result = run_cli("check", "-C", root, "--format", "json")
+    assert result.code == 1
+    assert [f["subject"] for f in json.loads(result.out)["findings"] if f["area"] == "data"] == [
+        "data/east/well00007.dat"]
+    assert counted == [1]  # the changed folder's other files came from its row
+
+
+def test_folder_rows_round_trip_and_refuse_other_shapes() -> None:
+    from holotype.capture.digest_cache import pack_files, unpack_files
+
+    pairs = [((2049, 7, 10, 1_700_000_000_123_456_789, 1_700_000_000_987_654_321), hashlib.sha256(b"a").hexdigest()),
+             ((-1, 2**62, 0, 0, 1), hashlib.sha256(b"").hexdigest())]
+    blob = pack_files(pairs)
+    assert len(blob) == 2 * (40 + 32) and unpack_files(blob) == dict(pairs)
+    assert unpack_files(blob[:-1]) == {} and unpack_files(b"") == {}

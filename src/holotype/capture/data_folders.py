@@ -12,7 +12,7 @@ import json
 import os
 from dataclasses import dataclass, field
 
-from holotype.capture.digest_cache import DigestCache
+from holotype.capture.digest_cache import DigestCache, folder_key
 from holotype.capture.fingerprints import FingerprintResult, HashProgress, fingerprint_files
 from holotype.capture.folder_digests import Answer
 from holotype.capture.folder_stamps import stamp
@@ -40,7 +40,7 @@ class DataResult(FingerprintResult):
 
 
 def _key(real_root: str, folder: str) -> str:
-    return f"folder:{real_root}\0{folder}"
+    return folder_key(real_root, folder)
 
 
 def remembered_stamps(root: str, cache: DigestCache, recorded: dict[str, FolderRecord],
@@ -101,6 +101,17 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
             out.folders[folder] = known[folder][1]
             continue
         to_digest.update((f.rel, f) for f in items)
+    if cache is not None and to_digest:
+        # a worker remembered the files of a folder entry in one row (digest_cache.py): load those of the
+        # entries digested here, and of every folder above a file listed on its own (it may have been in one)
+        entries = {folder for folder in groups if folder not in out.folders and groups[folder]}
+        above: set[str] = set()
+        for rel in loose:
+            parent = rel.rpartition("/")[0]
+            while parent and parent not in above:
+                above.add(parent)
+                parent = parent.rpartition("/")[0]
+        cache.preload_folders(_key(real, folder) for folder in sorted(entries | above))
     digests = fingerprint_files(dict(sorted(to_digest.items())), cache=cache, progress=progress)
     out.problems = digests.problems
     out.files_hashed, out.bytes_hashed, out.cache_hits = digests.files_hashed, digests.bytes_hashed, digests.cache_hits

@@ -1,5 +1,11 @@
 """Digests remembered by file identity (device, inode, size, mtime_ns, ctime_ns) in the user's cache dir.
 
+Most files have a row of their own. The files of a data folder entry digested by a worker
+(folder_digests.py) are remembered as one row per folder entry instead, a packed array of their
+identities and digests: one insert per thousand files rather than a thousand, which is most of what a
+cache costs a first record. Whoever digests such a folder loads its row first (`preload_folders`), and
+`lookup` then answers from it as from the file rows.
+
 An optimisation only: a missing or corrupt cache is rebuilt silently, and entries are never
 trusted for files changed in the last moments (their timestamps could still be shared with a
 later write in the same clock tick).
@@ -11,7 +17,8 @@ import os
 import sqlite3
 import stat
 import time
-from collections.abc import Sequence
+from array import array
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 
 from holotype.capture.hashing import RACY_SECONDS, Identity
@@ -23,6 +30,36 @@ _SCHEMA = """CREATE TABLE IF NOT EXISTS digests (
     PRIMARY KEY (dev, ino))"""
 # what an interpreter's numeric inspection answered, keyed by what decides it (capture/numerics.py)
 _FACTS = "CREATE TABLE IF NOT EXISTS facts (key TEXT PRIMARY KEY, doc TEXT NOT NULL, stored REAL NOT NULL)"
+# a folder entry's files: their identities (five int64 each), then their SHA-256 digests (32 bytes each)
+_FOLDER_FILES = "CREATE TABLE IF NOT EXISTS folder_files (key TEXT PRIMARY KEY, files BLOB NOT NULL)"
+_IDENTITY_BYTES = 5 * 8
+_DIGEST_BYTES = 32
+
+
+def folder_key(real_root: str, folder: str) -> str:
+    """The cache's key for what is remembered of data folder entry `folder` of the project at `real_root`."""
+    return f"folder:{real_root}\0{folder}"
+
+
+def pack_files(entries: Sequence[tuple[Identity, str]]) -> bytes:
+    """Files' (identity, hex digest) pairs as one folder row."""
+    numbers = array("q")
+    for ident, _ in entries:
+        numbers.extend(ident)
+    return numbers.tobytes() + bytes.fromhex("".join(digest for _, digest in entries))
+
+
+def unpack_files(blob: bytes) -> dict[Identity, str]:
+    """The pairs `pack_files` packed; {} for bytes of any other shape."""
+    count, rest = divmod(len(blob), _IDENTITY_BYTES + _DIGEST_BYTES)
+    if rest:
+        return {}
+    numbers = array("q")
+    numbers.frombytes(blob[:count * _IDENTITY_BYTES])
+    text = blob[count * _IDENTITY_BYTES:].hex()
+    digests = [text[i:i + 2 * _DIGEST_BYTES] for i in range(0, len(text), 2 * _DIGEST_BYTES)]
+    spread = iter(numbers)
+    return dict(zip(zip(spread, spread, spread, spread, spread), digests))
 
 
 def default_cache_path() -> Path:
@@ -44,6 +81,7 @@ class DigestCache:
     def __init__(self, path: Path | None = None) -> None:
         self.path = path or default_cache_path()
         self.conn: sqlite3.Connection | None = None
+        self._folders: dict[Identity, str] = {}  # what preload_folders loaded
         self._open()
 
     def _connect(self) -> sqlite3.Connection:
@@ -55,6 +93,7 @@ class DigestCache:
         conn.execute("PRAGMA synchronous=NORMAL")
         conn.execute(_SCHEMA)
         conn.execute(_FACTS)
+        conn.execute(_FOLDER_FILES)
         conn.execute(f"PRAGMA application_id = {APPLICATION_ID}")
         conn.execute("SELECT count(*) FROM digests WHERE dev = -1").fetchone()
         return conn
@@ -93,7 +132,7 @@ class DigestCache:
                 conn.close()
         except sqlite3.DatabaseError:
             return False
-        return names <= {"digests", "facts"} and "digests" in names
+        return names <= {"digests", "facts", "folder_files"} and "digests" in names
 
     def _open(self) -> None:
         ours = self._ours()
@@ -122,10 +161,16 @@ class DigestCache:
             return {}
         wanted = set(identities)
         found: dict[Identity, str] = {}
+        if self._folders:
+            loaded = self._folders
+            found = {ident: loaded[ident] for ident in wanted if ident in loaded}
+            if len(found) == len(wanted):
+                return found
         try:
             by_dev: dict[int, list[int]] = {}
             for ident in identities:
-                by_dev.setdefault(ident[0], []).append(ident[1])
+                if ident not in found:
+                    by_dev.setdefault(ident[0], []).append(ident[1])
             for dev, inodes in by_dev.items():
                 for start in range(0, len(inodes), 900):
                     chunk = inodes[start:start + 900]
@@ -138,8 +183,42 @@ class DigestCache:
                         if key in wanted:
                             found[key] = row[5]
         except sqlite3.DatabaseError:
-            return {}
+            return found
         return found
+
+    def preload_folders(self, keys: Iterable[str], below: str | None = None) -> None:
+        """Load the files remembered for folder entries `keys` (`folder_key`), and with `below` for every entry
+        whose key starts with it, so that `lookup` answers from them."""
+        if self.conn is None:
+            return
+        keys = list(keys)
+        try:
+            blobs = []
+            for start in range(0, len(keys), 900):
+                chunk = keys[start:start + 900]
+                blobs += [row[0] for row in self.conn.execute(
+                    f"SELECT files FROM folder_files WHERE key IN ({','.join('?' * len(chunk))})", chunk)]
+            if below:
+                # keys are text: those starting with `below` sort from it to just before its last code point + 1
+                end = below[:-1] + chr(ord(below[-1]) + 1)
+                blobs += [row[0] for row in self.conn.execute(
+                    "SELECT files FROM folder_files WHERE key >= ? AND key < ?", (below, end))]
+        except sqlite3.DatabaseError:
+            return
+        for blob in blobs:
+            if isinstance(blob, bytes):
+                self._folders.update(unpack_files(blob))
+
+    def remember_folders(self, items: Sequence[tuple[str, Sequence[tuple[Identity, str]]]]) -> None:
+        """Remember each folder entry's files (key, (identity, digest) pairs) in one row, replacing what was
+        remembered for it; files touched too recently to be trusted later are left out."""
+        if self.conn is None or not items:
+            return
+        now_ns = time.time_ns()
+        rows = [(key, pack_files([(ident, digest) for ident, digest in entries
+                                  if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]))
+                for key, entries in items]
+        self._write_many("INSERT OR REPLACE INTO folder_files (key, files) VALUES (?, ?)", rows)
 
     def store(self, entries: list[tuple[Identity, str]]) -> None:
         """Remember digests, skipping files touched too recently to be trusted later."""

@@ -32,6 +32,7 @@ from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import IO, TYPE_CHECKING, Any
 
+from holotype.capture.digest_cache import folder_key
 from holotype.capture.folder_stamps import Row, plain_rows, rows_stamp
 from holotype.capture.hashing import CHUNK, Identity, Unstable, digest_rows
 from holotype.capture.walk import ProjectWalker
@@ -61,14 +62,20 @@ class Answer:
 
 def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None, buf: bytearray) -> Answer | None:
     """Everything `record` keeps of the files below `rel`; None when the quick way cannot take them."""
-    found: list[tuple[Row, str, int]] = []
+    found: list[tuple[Row, str, Identity]] = []
     fresh: list[tuple[Identity, str]] = []
+    base = rel.strip("/")
+    real_root = str(walker.root)
+    if cache is not None:  # what the last record remembered of the folder entries here, and of those above
+        above = [base.rsplit("/", k)[0] for k in range(1, base.count("/") + 1)]
+        cache.preload_folders([folder_key(real_root, f) for f in (base, *above)],
+                              below=folder_key(real_root, base + "/"))
 
     def visit(where: int | str, cut: int, rows: list[Row]) -> None:
         """Hash one folder's files while it is open (a file is opened relative to it)."""
         known = cache.lookup([(r[1], r[2], r[3], r[4], r[5]) for r in rows]) if cache is not None else {}
-        digests, sizes, hashed = digest_rows(where, cut, rows, known, buf)
-        found.extend(zip(rows, digests, sizes))
+        digests, idents, hashed = digest_rows(where, cut, rows, known, buf)
+        found.extend(zip(rows, digests, idents))
         fresh.extend(hashed)
 
     try:
@@ -79,14 +86,15 @@ def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None,
     found.sort()  # by path (the paths differ)
     rows = [row for row, _, _ in found]
     digests = [digest for _, digest, _ in found]
-    sizes = [size for _, _, size in found]
+    idents = [ident for _, _, ident in found]  # as the file was when read (the walk's, for one known)
+    sizes = [ident[2] for ident in idents]
     answer = Answer()
     answer.bytes_hashed = sum(ident[2] for ident, _ in fresh)
     answer.hashed, answer.hits = len(fresh), len(rows) - len(fresh)
-    base = rel.strip("/")
     chosen = {f for f in choose_folders(r[0] for r in rows) if f == base or f.startswith(base + "/")}
     groups: dict[str, list[int]] = {}
     entry_of: dict[str, str | None] = {}
+    loose: list[int] = []
     for i, row in enumerate(rows):
         parent = row[0].rpartition("/")[0]
         if parent not in entry_of:
@@ -94,6 +102,7 @@ def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None,
         folder = entry_of[parent]
         if folder is None:
             answer.loose.append(row)
+            loose.append(i)
         else:
             groups.setdefault(folder, []).append(i)
     for folder in sorted(groups):
@@ -101,8 +110,13 @@ def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None,
         raw = MAGIC + b"".join([file_entry(rows[i][0], digests[i], sizes[i]) for i in members])
         record = FolderRecord(folder, len(members), sum(sizes[i] for i in members), hashlib.sha256(raw).hexdigest())
         answer.folders.append((record, raw, rows_stamp([rows[i] for i in members])))
-    if cache is not None and fresh:
-        cache.store(fresh)
+    if cache is not None:
+        # a folder entry's files in one row of the cache; the loose files, which this process digests next,
+        # each in a row of its own
+        cache.remember_folders([(folder_key(real_root, folder), [(idents[i], digests[i]) for i in groups[folder]])
+                                for folder in sorted(groups)])
+        if fresh and loose:
+            cache.store([(idents[i], digests[i]) for i in loose])
     return answer
 
 

@@ -148,19 +148,20 @@ def digest_walked(path: str | bytes, before: Identity, buf: bytearray,
 
 
 def digest_rows(where: int | str, cut: int, rows: Sequence[tuple[str, int, int, int, int, int]],
-                known: dict[Identity, str], buf: bytearray) -> tuple[list[str], list[int], list[tuple[Identity, str]]]:
+                known: dict[Identity, str],
+                buf: bytearray) -> tuple[list[str], list[Identity], list[tuple[Identity, str]]]:
     """`digest_walked` for the files of one folder the walk has just stat-ed, given as (path, identity) rows
     whose paths name the folder in their first `cut` characters; `where` is the open folder's descriptor
-    (or its path). Returns their digests (from `known` where it has their identity) and sizes, and the
-    (identity, digest) pairs of those hashed now. The loop is written out for the common case, a small
-    file read at once and still as the walk saw it; anything else goes through `digest_walked`, whose
-    errors it raises."""
+    (or its path). Returns their digests (from `known` where it has their identity), their identities as
+    read (the walk's for a known one), and the (identity, digest) pairs of those hashed now. The loop is
+    written out for the common case, a small file read at once and still as the walk saw it; anything else
+    goes through `digest_walked`, whose errors it raises."""
     view = memoryview(buf)
     limit = len(buf)
     dir_fd = where if isinstance(where, int) else None
     prefix = "" if dir_fd is not None else os.path.join(str(where), "")
     digests: list[str] = []
-    sizes: list[int] = []
+    idents: list[Identity] = []
     fresh: list[tuple[Identity, str]] = []
     flags, sha256, fstat, close, is_regular = _OPEN_FLAGS, hashlib.sha256, os.fstat, os.close, stat.S_ISREG
     for row in rows:
@@ -183,8 +184,8 @@ def digest_rows(where: int | str, cut: int, rows: Sequence[tuple[str, int, int, 
                 digest, ident = digest_walked(prefix + row[0][cut:], ident, buf, dir_fd)
             fresh.append((ident, digest))
         digests.append(digest)
-        sizes.append(ident[2])
-    return digests, sizes, fresh
+        idents.append(ident)
+    return digests, idents, fresh
 
 
 Outcome = tuple[str, Identity] | OSError | Unstable
