@@ -27,7 +27,9 @@ from holotype.errors import UnreadableOutput
 from holotype.phrasing import listed
 from holotype.tolerance import RuleBook
 
-CHUNK_ROWS = 50_000  # rows per chunk of a narrow table
+# rows per chunk of a narrow table: 20,000 rows of a 1,000,000 x 10 file compare in the same time as 50,000
+# (alternating runs, medians 0.917 s and 0.916 s) with a peak 34 MB lower (176 MB against 210 MB)
+CHUNK_ROWS = 20_000
 # cells per chunk of a wide one: pandas spends ~20 us per column on each chunk, so fewer cells would
 # slow a wide table down many times; 2,000,000 float cells are 16 MB
 CHUNK_CELLS = 2_000_000
