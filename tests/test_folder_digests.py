@@ -315,8 +315,14 @@ def test_a_workers_folder_entry_is_one_cache_row_and_a_later_change_is_hashed_al
         folders = db.execute("SELECT count(*) FROM folder_files").fetchone()[0]
     assert folders == 2  # one row per folder entry, none per file of it
     assert rows == ["few"] * 3  # the files listed one by one have rows of their own
+    def row_ids() -> list[tuple[int, str]]:
+        with sqlite3.connect(tmp_path / "cache" / "digests.sqlite3") as db:
+            return sorted(db.execute("SELECT rowid, key FROM folder_files"))
+
+    before = row_ids()
     assert run_cli("record", "--no-run", "-C", root).code == 0
     assert hashed[-1] == 0  # a second record knows every file, the workers' folders included
+    assert row_ids() == before  # and writes no folder row again (a replaced row gets a new rowid)
     (root / "data" / "east" / "well00007.dat").write_bytes(b"changed\n")
     counted: list[int] = []
     real_hash = fingerprints._hash_all

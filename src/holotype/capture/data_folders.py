@@ -39,10 +39,6 @@ class DataResult(FingerprintResult):
         return out
 
 
-def _key(real_root: str, folder: str) -> str:
-    return folder_key(real_root, folder)
-
-
 def remembered_stamps(root: str, cache: DigestCache, recorded: dict[str, FolderRecord],
                       folders: list[str] | None = None) -> dict[str, tuple[str, FolderRecord]]:
     """For each recorded folder (or each of `folders`) whose stamp is remembered beside the recorded listing:
@@ -50,7 +46,7 @@ def remembered_stamps(root: str, cache: DigestCache, recorded: dict[str, FolderR
     real = os.path.realpath(root)
     wanted = [f for f in (folders if folders is not None else recorded) if f in recorded]
     out: dict[str, tuple[str, FolderRecord]] = {}
-    keys = [_key(real, f) for f in wanted]
+    keys = [folder_key(real, f) for f in wanted]
     docs = cache.facts(keys)
     for folder, key in zip(wanted, keys):
         doc = docs.get(key)
@@ -89,7 +85,7 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
         else:
             groups[folder].append(item)
     real = os.path.realpath(root)
-    keys = {folder: _key(real, folder) for folder in chosen}
+    keys = {folder: folder_key(real, folder) for folder in chosen}
     stamps = {folder: stamp(items) for folder, items in groups.items()} if cache is not None else {}
     known = remembered_stamps(root, cache, recorded or {}, [f for f in chosen if stamps.get(f)]) \
         if cache is not None and not listings else {}
@@ -111,7 +107,7 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
             while parent and parent not in above:
                 above.add(parent)
                 parent = parent.rpartition("/")[0]
-        cache.preload_folders(_key(real, folder) for folder in sorted(entries | above))
+        cache.preload_folders(folder_key(real, folder) for folder in sorted(entries | above))
     digests = fingerprint_files(dict(sorted(to_digest.items())), cache=cache, progress=progress)
     out.problems = digests.problems
     out.files_hashed, out.bytes_hashed, out.cache_hits = digests.files_hashed, digests.bytes_hashed, digests.cache_hits
@@ -125,7 +121,7 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
             if listings:
                 out.listings[entry.path] = raw
             if cache is not None and folder_stamp:
-                remember.append((_key(real, entry.path), json.dumps({
+                remember.append((folder_key(real, entry.path), json.dumps({
                     "stamp": folder_stamp, "listing": entry.listing, "files": entry.files, "bytes": entry.bytes})))
     per_folder: dict[str, dict[str, FileRecord]] = {}
     for rel, rec in digests.records.items():

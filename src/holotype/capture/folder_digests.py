@@ -110,12 +110,12 @@ def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None,
         raw = MAGIC + b"".join([file_entry(rows[i][0], digests[i], sizes[i]) for i in members])
         record = FolderRecord(folder, len(members), sum(sizes[i] for i in members), hashlib.sha256(raw).hexdigest())
         answer.folders.append((record, raw, rows_stamp([rows[i] for i in members])))
-    if cache is not None:
+    if cache is not None and fresh:  # with nothing hashed, the cache already answers for every file here
         # a folder entry's files in one row of the cache; the loose files, which this process digests next,
         # each in a row of its own
         cache.remember_folders([(folder_key(real_root, folder), [(idents[i], digests[i]) for i in groups[folder]])
                                 for folder in sorted(groups)])
-        if fresh and loose:
+        if loose:
             cache.store([(idents[i], digests[i]) for i in loose])
     return answer
 
