@@ -154,31 +154,31 @@ def digest_rows(where: int | str, cut: int, rows: Sequence[tuple[str, int, int, 
     whose paths name the folder in their first `cut` characters; `where` is the open folder's descriptor
     (or its path). Returns their digests (from `known` where it has their identity), their identities as
     read (the walk's for a known one), and the (identity, digest) pairs of those hashed now. The loop is
-    written out for the common case, a small file read at once and still as the walk saw it; anything else
-    goes through `digest_walked`, whose errors it raises."""
-    view = memoryview(buf)
+    written out for the common case, a small file read at once and still as the walk saw it (one `os.read`
+    of a byte more than the walk saw: a bytes object costs less than slicing `buf` for each file); anything
+    else goes through `digest_walked`, whose errors it raises."""
     limit = len(buf)
     dir_fd = where if isinstance(where, int) else None
     prefix = "" if dir_fd is not None else os.path.join(str(where), "")
     digests: list[str] = []
     idents: list[Identity] = []
     fresh: list[tuple[Identity, str]] = []
-    flags, sha256, fstat, close, is_regular = _OPEN_FLAGS, hashlib.sha256, os.fstat, os.close, stat.S_ISREG
+    flags, sha256, fstat, close, is_regular, read = (_OPEN_FLAGS, hashlib.sha256, os.fstat, os.close, stat.S_ISREG,
+                                                    os.read)
     for row in rows:
-        ident = (row[1], row[2], row[3], row[4], row[5])
+        ident: Identity = row[1:]  # (dev, ino, size, mtime_ns, ctime_ns)
         digest = known.get(ident) if known else None
         if digest is None:
             size = row[3]
-            st = None
             if size < limit:
                 fd = os.open(prefix + row[0][cut:], flags, dir_fd=dir_fd)
                 try:
-                    n = _read_into(fd, view[:size + 1])
+                    data = read(fd, size + 1)
                     st = fstat(fd)
                 finally:
                     close(fd)
-                if n == size and st.st_size == size and st.st_mtime_ns == row[4] and is_regular(st.st_mode):
-                    digest = sha256(view[:n]).hexdigest()
+                if len(data) == size and st.st_size == size and st.st_mtime_ns == row[4] and is_regular(st.st_mode):
+                    digest = sha256(data).hexdigest()
                     ident = (st.st_dev, st.st_ino, size, st.st_mtime_ns, st.st_ctime_ns)
             if digest is None:  # big, or not as the walk saw it
                 digest, ident = digest_walked(prefix + row[0][cut:], ident, buf, dir_fd)
