@@ -13,7 +13,7 @@ import pytest
 from conftest import run_cli, write
 from holotype.capture.digest_cache import DigestCache
 from holotype.lockfile import read_lock, write_lock
-from holotype.manifests import FOLDER_THRESHOLD, choose_folders, decode_listing, encode_listing
+from holotype.manifests import FOLDER_THRESHOLD, ancestors_of, choose_folders, decode_listing, encode_listing
 from holotype.records import FileRecord
 from holotype.store import BaselineStore
 
@@ -231,6 +231,11 @@ def test_folder_choice_is_deepest_first() -> None:
     assert choose_folders(paths) == {"d/a", "d"}  # b and c are too small alone; together they make d an entry
     assert choose_folders([f"top{i}" for i in range(2 * N)]) == set()  # the project's top level never is one
     assert choose_folders([f"x/y/z/{i}" for i in range(N - 1)]) == set()
+
+
+def test_the_folders_above_a_path_are_named_nearest_first() -> None:
+    assert ancestors_of("data/east/well1.dat") == ["data/east", "data"]
+    assert ancestors_of("top.csv") == []  # the project's top level is no folder entry
 
 
 def test_many_small_files_hashed_in_worker_processes_match_hashlib(tmp_path: Path) -> None:

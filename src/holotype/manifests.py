@@ -37,6 +37,16 @@ def parent_of(rel: str) -> str:
     return rel.rpartition("/")[0]
 
 
+def ancestors_of(rel: str) -> list[str]:
+    """The folders holding `rel` (project-relative), nearest first; the project's top level is not one."""
+    out: list[str] = []
+    folder = parent_of(rel)
+    while folder:
+        out.append(folder)
+        folder = parent_of(folder)
+    return out
+
+
 def choose_folders(paths: Iterable[str], threshold: int = FOLDER_THRESHOLD) -> set[str]:
     """The folders (project-relative) to record as one entry each; the project's top level never is one."""
     direct = Counter(rel.rpartition("/")[0] for rel in paths)

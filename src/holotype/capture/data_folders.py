@@ -17,7 +17,7 @@ from holotype.capture.fingerprints import FingerprintResult, HashProgress, finge
 from holotype.capture.folder_digests import Answer
 from holotype.capture.folder_stamps import stamp
 from holotype.capture.walk import ProjectFile
-from holotype.manifests import choose_folders, decode_listing, folder_of, folder_record
+from holotype.manifests import ancestors_of, choose_folders, decode_listing, folder_of, folder_record
 from holotype.records import FileRecord, FolderRecord
 
 
@@ -101,12 +101,7 @@ def fingerprint_data(files: dict[str, ProjectFile], root: str, *, cache: DigestC
         # a worker remembered the files of a folder entry in one row (digest_cache.py): load those of the
         # entries digested here, and of every folder above a file listed on its own (it may have been in one)
         entries = {folder for folder in groups if folder not in out.folders and groups[folder]}
-        above: set[str] = set()
-        for rel in loose:
-            parent = rel.rpartition("/")[0]
-            while parent and parent not in above:
-                above.add(parent)
-                parent = parent.rpartition("/")[0]
+        above = {folder for rel in loose for folder in ancestors_of(rel)}
         cache.preload_folders(folder_key(real, folder) for folder in sorted(entries | above))
     digests = fingerprint_files(dict(sorted(to_digest.items())), cache=cache, progress=progress)
     out.problems = digests.problems

@@ -62,6 +62,12 @@ def unpack_files(blob: bytes) -> dict[Identity, str]:
     return dict(zip(zip(spread, spread, spread, spread, spread), digests))
 
 
+def _settled(entries: Sequence[tuple[Identity, str]]) -> list[tuple[Identity, str]]:
+    """The entries whose files were last changed long enough ago to be trusted later (RACY_SECONDS)."""
+    now_ns = time.time_ns()
+    return [(ident, digest) for ident, digest in entries if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]
+
+
 def default_cache_path() -> Path:
     """$HOLOTYPE_CACHE_DIR, else the platform's user cache folder."""
     override = os.environ.get("HOLOTYPE_CACHE_DIR")
@@ -214,19 +220,14 @@ class DigestCache:
         remembered for it; files touched too recently to be trusted later are left out."""
         if self.conn is None or not items:
             return
-        now_ns = time.time_ns()
-        rows = [(key, pack_files([(ident, digest) for ident, digest in entries
-                                  if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]))
-                for key, entries in items]
+        rows = [(key, pack_files(_settled(entries))) for key, entries in items]
         self._write_many("INSERT OR REPLACE INTO folder_files (key, files) VALUES (?, ?)", rows)
 
     def store(self, entries: list[tuple[Identity, str]]) -> None:
         """Remember digests, skipping files touched too recently to be trusted later."""
         if self.conn is None or not entries:
             return
-        now_ns = time.time_ns()
-        safe = [(*ident, digest) for ident, digest in entries
-                if now_ns - max(ident[3], ident[4]) > RACY_SECONDS * 1e9]
+        safe = [(*ident, digest) for ident, digest in _settled(entries)]
         if safe:
             self._write_many("INSERT OR REPLACE INTO digests VALUES (?, ?, ?, ?, ?, ?)", safe)
 

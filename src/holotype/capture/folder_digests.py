@@ -36,7 +36,7 @@ from holotype.capture.digest_cache import folder_key
 from holotype.capture.folder_stamps import Row, plain_rows, rows_stamp
 from holotype.capture.hashing import CHUNK, Identity, Unstable, digest_rows
 from holotype.capture.walk import ProjectWalker
-from holotype.manifests import MAGIC, choose_folders, file_entry, folder_of
+from holotype.manifests import MAGIC, ancestors_of, choose_folders, file_entry, folder_of
 from holotype.records import FolderRecord
 
 if TYPE_CHECKING:
@@ -67,8 +67,7 @@ def digest_subfolder(walker: ProjectWalker, rel: str, cache: DigestCache | None,
     base = rel.strip("/")
     real_root = str(walker.root)
     if cache is not None:  # what the last record remembered of the folder entries here, and of those above
-        above = [base.rsplit("/", k)[0] for k in range(1, base.count("/") + 1)]
-        cache.preload_folders([folder_key(real_root, f) for f in (base, *above)],
+        cache.preload_folders([folder_key(real_root, f) for f in (base, *ancestors_of(base))],
                               below=folder_key(real_root, base + "/"))
 
     def visit(where: int | str, cut: int, rows: list[Row]) -> None:
